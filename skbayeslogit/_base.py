@@ -1,0 +1,691 @@
+"""Shared classifier base: input checks, label encoding, parameter layout.
+
+Two bases live here:
+
+``LinearClassifierBase``
+    What every estimator of the package shares: validation of X, y and
+    ``sample_weight`` with messages that name the problem, label encoding,
+    feature names, and the split of the parameter vector into ``coef_`` and
+    ``intercept_``.
+
+``GaussianPosteriorClassifier``
+    The Laplace-approximation machinery for models fitted by the shared
+    Newton solver (the Laplace logistic and the probit classifiers): MAP fit,
+    ``prior_scale="auto"`` by the Laplace evidence, the posterior API
+    (``logit_moments``, ``predict_interval``, ``coef_table``,
+    ``sample_coef``) and the predictive. A subclass supplies the likelihood
+    and the binary predictive through two hooks.
+"""
+
+import numbers
+import warnings
+
+import numpy as np
+import pandas as pd
+from scipy.optimize import minimize_scalar
+from scipy.special import logsumexp
+from scipy.stats import norm
+from sklearn.base import BaseEstimator, ClassifierMixin
+from sklearn.utils import check_random_state
+from sklearn.utils.multiclass import check_classification_targets
+from sklearn.utils.validation import _check_sample_weight, check_is_fitted, validate_data
+
+from ._design import LinearDesign
+from ._newton import NewtonProblem, solve_map
+from ._posterior import GaussianPosterior
+from ._special import expit
+from .exceptions import CollinearityWarning, SeparationWarning
+
+LOG_2PI = float(np.log(2.0 * np.pi))
+
+
+# -- parameter checks ---------------------------------------------------------
+def check_scale(name, value, allow_auto=False):
+    """Validate a prior scale: positive finite float, None, or "auto"."""
+    if value is None:
+        return None
+    if isinstance(value, str):
+        if allow_auto and value == "auto":
+            return "auto"
+        options = 'a positive float, None or "auto"' if allow_auto else "a positive float or None"
+        raise ValueError(f"{name} must be {options}; got {value!r}.")
+    if isinstance(value, bool) or not isinstance(value, numbers.Real):
+        raise TypeError(f"{name} must be a positive float; got {type(value).__name__}.")
+    value = float(value)
+    if not (np.isfinite(value) and value > 0):
+        raise ValueError(f"{name} must be a positive finite float; got {value!r}.")
+    return value
+
+
+def check_positive_int(name, value):
+    if isinstance(value, bool) or not isinstance(value, numbers.Integral) or value < 1:
+        raise ValueError(f"{name} must be a positive integer; got {value!r}.")
+    return int(value)
+
+
+def check_positive_float(name, value):
+    if isinstance(value, bool) or not isinstance(value, numbers.Real) or not value > 0:
+        raise ValueError(f"{name} must be a positive float; got {value!r}.")
+    return float(value)
+
+
+def check_level(level):
+    if isinstance(level, bool) or not isinstance(level, numbers.Real) or not 0 < level < 1:
+        raise ValueError(f"level must be a probability strictly between 0 and 1; got {level!r}.")
+    return float(level)
+
+
+def check_options(name, value, options):
+    if value not in options:
+        raise ValueError(f"{name} must be one of {', '.join(map(repr, options))}; got {value!r}.")
+    return value
+
+
+def _reject_non_numeric_frame(X):
+    """Name the non-numeric columns of a DataFrame before numpy conversion."""
+    if isinstance(X, pd.DataFrame):
+        bad = [
+            str(c)
+            for c, dt in X.dtypes.items()
+            if not (pd.api.types.is_numeric_dtype(dt) or pd.api.types.is_bool_dtype(dt))
+            or pd.api.types.is_complex_dtype(dt)
+        ]
+        if bad:
+            raise ValueError(
+                f"non-numeric feature column(s): {', '.join(bad)}. Encode them first "
+                "(for example with sklearn.preprocessing.OneHotEncoder in a "
+                "ColumnTransformer) or leave them out of X."
+            )
+
+
+class LinearClassifierBase(ClassifierMixin, BaseEstimator):
+    """Validation, label encoding and parameter layout for linear classifiers."""
+
+    #: Binary-only models set this to True.
+    _binary_only = False
+
+    def __sklearn_tags__(self):
+        tags = super().__sklearn_tags__()
+        if self._binary_only:
+            tags.classifier_tags.multi_class = False
+        return tags
+
+    # -- input -------------------------------------------------------------
+    def _validate_fit_data(self, X, y, sample_weight):
+        """Checked float64 X (never a modified caller array), codes, weights.
+
+        Returns
+        -------
+        X : ndarray (n, d), float64, C order
+        y_codes : ndarray (n,), int64 codes into ``classes_``
+        w : ndarray (n,), float64, non-negative with a positive sum
+        """
+        _reject_non_numeric_frame(X)
+        X, y = validate_data(
+            self, X, y, dtype=np.float64, order="C", ensure_min_samples=1, y_numeric=False
+        )
+        check_classification_targets(y)
+        self.classes_, y_codes = np.unique(y, return_inverse=True)
+        y_codes = y_codes.astype(np.int64)
+        n_classes = len(self.classes_)
+        if n_classes < 2:
+            raise ValueError(
+                f"y contains only one class ({self.classes_[0]!r}); a classifier needs "
+                "at least two classes."
+            )
+        if self._binary_only and n_classes > 2:
+            raise ValueError("Only binary classification is supported.")
+        if sample_weight is None:
+            w = np.ones(X.shape[0])
+        else:
+            w = _check_sample_weight(sample_weight, X, dtype=np.float64, ensure_non_negative=True)
+            w = np.array(w, dtype=np.float64)  # our own copy, whatever was passed
+            if not np.all(np.isfinite(w)):
+                raise ValueError("sample_weight contains NaN or infinity.")
+            if w.sum() <= 0:
+                raise ValueError("sample_weight sums to zero; at least one row needs weight > 0.")
+            present = np.unique(y_codes[w > 0])
+            if len(present) < 2:
+                raise ValueError(
+                    "only one class has positive sample_weight "
+                    f"({self.classes_[present[0]]!r}); a classifier needs at least two classes."
+                )
+        return X, y_codes, w
+
+    def _validate_predict_data(self, X):
+        check_is_fitted(self, "coef_")
+        _reject_non_numeric_frame(X)
+        return validate_data(self, X, reset=False, dtype=np.float64, order="C")
+
+    # -- naming ------------------------------------------------------------
+    def _feature_names(self):
+        names = getattr(self, "feature_names_in_", None)
+        if names is not None:
+            return [str(n) for n in names]
+        return [f"x{j}" for j in range(self.n_features_in_)]
+
+    def _parameter_index(self):
+        """Index of the full parameter vector: coef rows, then intercepts."""
+        feats = self._feature_names()
+        q = self.coef_.shape[0]
+        if q == 1:
+            names = feats + (["intercept"] if self.fit_intercept else [])
+            return pd.Index(names, name="parameter")
+        classes = [str(c) for c in self.classes_]
+        tuples = [(c, f) for c in classes for f in feats]
+        if self.fit_intercept:
+            tuples += [(c, "intercept") for c in classes]
+        return pd.MultiIndex.from_tuples(tuples, names=["class", "parameter"])
+
+    def _set_coef(self, design, theta):
+        W, b = design.split(theta)
+        self.coef_ = np.array(W)
+        self.intercept_ = np.array(b) if self.fit_intercept else np.zeros(design.q)
+
+    # -- prediction --------------------------------------------------------
+    def predict(self, X):
+        """Most probable class for each row.
+
+        Parameters
+        ----------
+        X : array-like of shape (n_samples, n_features)
+
+        Returns
+        -------
+        ndarray of shape (n_samples,), values from ``classes_``.
+        """
+        scores = self.decision_function(X)
+        if scores.ndim == 1:
+            return self.classes_[(scores > 0).astype(int)]
+        return self.classes_[np.argmax(scores, axis=1)]
+
+    def predict_log_proba(self, X):
+        """Log of ``predict_proba``, computed without taking log of a rounded 0."""
+        scores = self.decision_function(X)
+        if scores.ndim == 1:
+            return np.column_stack([-np.logaddexp(0, scores), -np.logaddexp(0, -scores)])
+        return scores - logsumexp(scores, axis=1, keepdims=True)
+
+    def predict_proba(self, X):
+        """Predictive class probabilities, shape (n_samples, n_classes); rows sum to 1."""
+        scores = self.decision_function(X)
+        if scores.ndim == 1:
+            p1 = expit(scores)
+            return np.column_stack([expit(-scores), p1])
+        P = np.exp(scores - logsumexp(scores, axis=1, keepdims=True))
+        return P / P.sum(axis=1, keepdims=True)
+
+
+def _binary_separation(X, y, w, fit_intercept):
+    """True when some direction v separates the classes (weakly).
+
+    The maximum-likelihood estimate of a binary GLM with a monotone link
+    fails to exist exactly when a nonzero v has s_i x_i^T v >= 0 for every
+    row (s_i = +1 for class 1, -1 for class 0) with at least one strict
+    inequality (Albert & Anderson, Biometrika 71, 1984). The linear program
+    max sum_i s_i x_i^T v subject to those constraints and |v_j| <= 1 finds
+    such a v when its optimum is positive (Konis, "Linear programming
+    algorithms for detecting separated data in binary logistic regression
+    models", DPhil thesis, Oxford, 2007).
+    """
+    from scipy.optimize import linprog
+
+    keep = w > 0
+    A = X[keep]
+    if fit_intercept:
+        A = np.column_stack([A, np.ones(len(A))])
+    scale = np.max(np.abs(A), axis=0)
+    A = A / np.where(scale > 0, scale, 1.0)
+    S = A * np.where(y[keep] > 0.5, 1.0, -1.0)[:, None]
+    res = linprog(-S.sum(axis=0), A_ub=-S, b_ub=np.zeros(len(S)), bounds=(-1, 1), method="highs")
+    return bool(res.status == 0 and -res.fun > 1e-7 * len(S))
+
+
+def _zero_sum_basis(K):
+    """Orthonormal basis (K, K-1) of vectors whose entries sum to zero."""
+    # Q from the QR of the centring matrix's first K-1 columns spans that space.
+    centred = np.eye(K) - 1.0 / K
+    Q, _ = np.linalg.qr(centred[:, : K - 1])
+    return Q
+
+
+def _moderated_softmax_log(mean, cov):
+    """Log of a moderated softmax, the multiclass analogue of sigma(kappa m).
+
+    Approximates E[softmax(eta)]_k for eta ~ N(mean, cov) by the pairwise
+    mean-field form of Lu, Ie & Sha, "Mean-field approximation to
+    Gaussian-softmax integral with application to uncertainty estimation"
+    (arXiv:2006.07584, 2020):
+
+        p_k ~ 1 / sum_j exp(-(m_k - m_j) / sqrt(1 + pi/8 * s_kj)),
+
+    with s_kj the variance of eta_k - eta_j (their mean-field version uses
+    s_kk + s_jj; using the variance of the difference keeps the posterior
+    correlation between classes, and for K = 2 reduces exactly to the binary
+    sigma(kappa(v) m)). The K values are then renormalised to sum to one.
+
+    Parameters
+    ----------
+    mean : ndarray (n, K)
+    cov : ndarray (n, K, K)
+
+    Returns
+    -------
+    ndarray (n, K): normalised log probabilities.
+    """
+    diag = np.einsum("nkk->nk", cov)
+    s = diag[:, :, None] + diag[:, None, :] - 2.0 * cov
+    s = np.maximum(s, 0.0)
+    diff = mean[:, :, None] - mean[:, None, :]
+    # log p_k = -logsumexp_j(-(m_k - m_j) / sqrt(1 + pi s_kj / 8))
+    logp = -logsumexp(-diff / np.sqrt(1.0 + np.pi * s / 8.0), axis=2)
+    return logp - logsumexp(logp, axis=1, keepdims=True)
+
+
+class GaussianPosteriorClassifier(LinearClassifierBase):
+    """Base of the models fitted by Newton MAP plus a Laplace posterior.
+
+    Subclasses define ``_make_likelihood(n_classes)``, ``_binary_decision``
+    (log-odds of the predictive given the latent mean and variance) and
+    ``_predictive_options``.
+    """
+
+    _predictive_options = ("map", "mc")
+
+    # -- hooks ---------------------------------------------------------------
+    def _make_likelihood(self, n_classes):  # pragma: no cover - abstract
+        raise NotImplementedError
+
+    def _binary_decision(self, mean, var):  # pragma: no cover - abstract
+        raise NotImplementedError
+
+    # -- fitting ---------------------------------------------------------------
+    def _check_params(self):
+        self._prior_scale = check_scale("prior_scale", self.prior_scale, allow_auto=True)
+        self._intercept_scale = check_scale("intercept_prior_scale", self.intercept_prior_scale)
+        check_positive_int("max_iter", self.max_iter)
+        check_positive_float("tol", self.tol)
+        check_options("predictive", self.predictive, self._predictive_options)
+        check_positive_int("n_draws", self.n_draws)
+
+    def fit(self, X, y, sample_weight=None):
+        """Find the MAP, the Laplace posterior and the evidence.
+
+        Parameters
+        ----------
+        X : array-like of shape (n_samples, n_features)
+            Numeric features; never modified.
+        y : array-like of shape (n_samples,)
+            Class labels (any hashable, sortable type).
+        sample_weight : array-like of shape (n_samples,), optional
+            Non-negative frequency weights: the objective is the weighted
+            SUM of per-row negative log-likelihoods, so an integer weight is
+            the same as repeating the row.
+
+        Returns
+        -------
+        self
+        """
+        self._check_params()
+        X, y_codes, w = self._validate_fit_data(X, y, sample_weight)
+        n_classes = len(self.classes_)
+        q = 1 if n_classes == 2 else n_classes
+        likelihood = self._make_likelihood(n_classes)
+        design = LinearDesign(X, q, self.fit_intercept)
+        y_fit = y_codes.astype(np.float64) if q == 1 else y_codes
+        free_map = self._free_map(design)
+
+        def fit_at(scale, phi0=None, warn=True):
+            prior = self._prior_precision(design, scale)
+            problem = NewtonProblem(design, likelihood, y_fit, w, prior, free_map)
+            result = solve_map(problem, phi0, max_iter=self.max_iter, tol=self.tol, warn=warn)
+            return result, self._log_evidence(design, problem, result, scale)
+
+        if self._prior_scale == "auto":
+            scale, result, log_ev = self._maximise_evidence(X, fit_at)
+        else:
+            scale = self._prior_scale
+            result, log_ev = fit_at(scale)
+
+        self.prior_scale_ = scale
+        self.log_evidence_ = log_ev
+        self.n_iter_ = result.n_iter
+        self._set_coef(design, result.theta)
+        self._posterior = GaussianPosterior(result.theta, result.chol, free_map)
+        self.posterior_mean_ = result.theta.copy()
+        self.posterior_cov_ = self._posterior.cov
+        self._check_identification(design, likelihood, y_fit, w, result, X)
+        return self
+
+    def _free_map(self, design):
+        """T: full = T @ free; None for the identity.
+
+        - Binary: identity.
+        - Multiclass with a slope prior and a flat intercept prior: the K
+          intercepts are constrained to sum to zero (the likelihood cannot
+          see their common shift and a flat prior does not fix it).
+        - Multiclass without a slope prior: the first class is the reference
+          (its coefficients and intercept are fixed at 0), as in the
+          classical multinomial logit.
+        """
+        q, d = design.q, design.d
+        if q == 1:
+            return None
+        p = design.p_full
+        if self._prior_scale is None:
+            keep = [j for j in range(d * q) if j >= d]
+            if design.fit_intercept:
+                keep += [design.n_coef + k for k in range(1, q)]
+            return np.eye(p)[:, keep]
+        if design.fit_intercept and self._intercept_scale is None:
+            T = np.zeros((p, design.n_coef + q - 1))
+            T[: design.n_coef, : design.n_coef] = np.eye(design.n_coef)
+            T[design.n_coef :, design.n_coef :] = _zero_sum_basis(q)
+            return T
+        return None
+
+    def _prior_precision(self, design, scale):
+        prec = np.zeros(design.p_full)
+        if scale is not None:
+            prec[: design.n_coef] = 1.0 / scale**2
+        if design.fit_intercept and self._intercept_scale is not None:
+            prec[design.n_coef :] = 1.0 / self._intercept_scale**2
+        return prec
+
+    def _log_evidence(self, design, problem, result, scale):
+        """Laplace log evidence log p(y | X, prior_scale).
+
+        log Z = -E(theta*) + (p/2) log(2 pi) - (1/2) log det H
+                - sum over proper-prior parameters of (1/2) log(2 pi s^2),
+        with E the penalised objective at the MAP and p the number of free
+        parameters (MacKay 1992; Bishop 2006, eq. 4.137). With a flat
+        intercept prior the evidence is defined up to an additive constant
+        that does not depend on ``prior_scale``; it is None without a slope
+        prior (improper prior, no evidence).
+        """
+        if scale is None:
+            return None
+        log_det = 2.0 * float(np.sum(np.log(np.diag(result.chol))))
+        # Every slope has the proper N(0, scale^2) prior (the free map only
+        # ever constrains intercepts when a slope prior is set).
+        const = -0.5 * design.n_coef * (LOG_2PI + 2.0 * np.log(scale))
+        if design.fit_intercept and self._intercept_scale is not None:
+            const += -0.5 * design.q * (LOG_2PI + 2.0 * np.log(self._intercept_scale))
+        return float(-result.objective + 0.5 * problem.p_free * LOG_2PI - 0.5 * log_det + const)
+
+    def _maximise_evidence(self, X, fit_at):
+        """prior_scale maximising the Laplace evidence, on a log scale.
+
+        A coarse grid of nine scales, a decade apart around 1 / (median
+        feature sd), brackets the maximum; bounded Brent on log10(scale)
+        within one decade either side of the best grid point refines it.
+        Each fit starts from the nearest earlier solution.
+        """
+        sd = X.std(axis=0)
+        sd = sd[sd > 0]
+        ref = 1.0 / float(np.median(sd)) if len(sd) else 1.0
+        centre = np.log10(ref)
+        grid = centre + np.arange(-4.0, 5.0)
+        cache = {}
+
+        def neg_log_ev(u):
+            if u in cache:
+                return -cache[u][1]
+            nearest = min(cache, key=lambda v: abs(v - u)) if cache else None
+            phi0 = None if nearest is None else cache[nearest][0].phi
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                result, log_ev = fit_at(10.0**u, phi0, warn=False)
+            cache[u] = (result, log_ev)
+            return -log_ev
+
+        values = [neg_log_ev(u) for u in grid]
+        best = int(np.argmin(values))
+        lo, hi = grid[max(best - 1, 0)], grid[min(best + 1, len(grid) - 1)]
+        minimize_scalar(neg_log_ev, bounds=(lo, hi), method="bounded", options={"xatol": 1e-3})
+        u_best = min(cache, key=lambda v: -cache[v][1])
+        if u_best <= grid[0] + 1e-6 or u_best >= grid[-1] - 1e-6:
+            warnings.warn(
+                "the Laplace evidence is largest at the edge of the searched range of "
+                f"prior_scale ({10.0 ** grid[0]:.3g} to {10.0 ** grid[-1]:.3g}); the chosen "
+                "scale may not be the maximiser. Standardise the features or pass a "
+                "prior_scale.",
+                UserWarning,
+                stacklevel=3,
+            )
+        scale = 10.0**u_best
+        # Refit at the chosen scale with warnings on, so a real convergence
+        # problem is reported.
+        result, log_ev = fit_at(scale, cache[u_best][0].phi, warn=True)
+        return scale, result, log_ev
+
+    # -- identification checks ---------------------------------------------
+    def _check_identification(self, design, likelihood, y, w, result, X):
+        if self._prior_scale is not None:
+            return
+        self._warn_collinear(result)
+        # A recorded label fitted with probability 1 - 1e-12 or closer is what
+        # an estimate drifting to infinity produces (separation).
+        if design.q == 1:
+            # -log p(y | eta) < 1e-12 exactly when the signed margin > 27.6.
+            perfect_rows = np.where(y > 0.5, result.eta, -result.eta) > 27.6
+        else:
+            logp = likelihood._log_softmax(result.eta)
+            perfect_rows = logp[np.arange(len(y)), y.astype(int)] > -1e-12
+        perfect = int(np.sum(perfect_rows & (w > 0)))
+        if perfect == 0:
+            return
+        confirmed = design.q == 1 and _binary_separation(X, y, w, design.fit_intercept)
+        if design.q > 1 or confirmed:
+            kind = "complete or quasi-complete separation" if confirmed else "likely separation"
+            warnings.warn(
+                f"the maximum-likelihood estimate does not exist ({kind}: {perfect} "
+                "row(s) are fitted with probability 1 to within 1e-12, and the "
+                "coefficients grow without bound). The reported coefficients and "
+                "intervals are meaningless; set prior_scale (a float or 'auto').",
+                SeparationWarning,
+                stacklevel=3,
+            )
+
+    def _warn_collinear(self, result):
+        L = result.chol
+        H = L @ L.T
+        dscale = np.sqrt(np.diag(H))
+        Hs = H / np.outer(dscale, dscale)
+        eigval, eigvec = np.linalg.eigh(Hs)
+        ratio = eigval[0] / eigval[-1]
+        if result.jitter == 0.0 and ratio > 1e-10:
+            return
+        names = list(self._parameter_index())
+        if self.coef_.shape[0] > 1:
+            names = [f"{c}:{p}" for c, p in names]
+            # The reference class's parameters are not free.
+            keep = [i for i, v in enumerate(self._free_name_mask()) if v]
+            names = [names[i] for i in keep]
+        v = np.abs(eigvec[:, 0])
+        involved = [names[i] for i in np.argsort(-v) if v[i] > 0.1][:6]
+        msg = (
+            "the features are (nearly) linearly dependent without a prior: the "
+            f"Hessian's scaled condition number is {1 / max(ratio, 1e-300):.2g}; "
+            f"the dependence involves {', '.join(involved)}. Drop or combine these "
+            "columns, or set prior_scale."
+        )
+        if result.jitter > 0.0 or ratio < 1e-14:
+            raise ValueError(msg)
+        warnings.warn(msg, CollinearityWarning, stacklevel=4)
+
+    def _free_name_mask(self):
+        q, d = self.coef_.shape
+        mask = [k > 0 for k in range(q) for _ in range(d)]
+        if self.fit_intercept:
+            mask += [k > 0 for k in range(q)]
+        return mask
+
+    # -- posterior API ---------------------------------------------------------
+    def _design_for_predict(self):
+        q, d = self.coef_.shape
+        return LinearDesign(np.empty((0, d)), q, self.fit_intercept)
+
+    def logit_moments(self, X):
+        """Posterior mean and (co)variance of the latent linear predictor.
+
+        Parameters
+        ----------
+        X : array-like of shape (n_samples, n_features)
+
+        Returns
+        -------
+        mean : ndarray of shape (n_samples,) (binary) or (n_samples, K)
+        var : ndarray of shape (n_samples,) (binary: variance) or
+            (n_samples, K, K) (multiclass: covariance of the K predictors)
+        """
+        X = self._validate_predict_data(X)
+        return self._posterior.latent_moments(self._design_for_predict(), X)
+
+    def decision_function(self, X):
+        """Scores that rank exactly as ``predict_proba``.
+
+        Binary: the log-odds of the predictive probability of ``classes_[1]``,
+        shape (n_samples,). Multiclass: the log predictive probabilities,
+        shape (n_samples, K).
+        """
+        X = self._validate_predict_data(X)
+        design = self._design_for_predict()
+        if self.predictive == "mc":
+            return self._mc_decision(design, X)
+        mean, var = self._posterior.latent_moments(design, X)
+        if design.q == 1:
+            if self.predictive == "map":
+                return mean
+            return self._binary_decision(mean, var)
+        if self.predictive == "map":
+            return mean - logsumexp(mean, axis=1, keepdims=True)
+        return _moderated_softmax_log(mean, var)
+
+    def _coef_draws(self, n_draws, random_state):
+        rng = check_random_state(random_state)
+        # numpy Generator from the legacy RandomState seed, for standard_normal speed.
+        gen = np.random.default_rng(rng.randint(0, 2**31 - 1))
+        return self._posterior.sample(n_draws, gen)
+
+    def _mc_decision(self, design, X):
+        draws = self._coef_draws(self.n_draws, self.random_state)
+        lik = self._make_likelihood(2 if design.q == 1 else design.q)
+        if design.q == 1:
+            log_p1 = np.empty(len(X))
+            log_p0 = np.empty(len(X))
+            for start in range(0, len(X), 4096):
+                Xc = X[start : start + 4096]
+                eta = Xc @ draws[:, : design.d].T
+                if design.fit_intercept:
+                    eta += draws[:, design.d]
+                log_p1[start : start + len(Xc)] = logsumexp(lik.log_prob_positive(eta), axis=1)
+                log_p0[start : start + len(Xc)] = logsumexp(lik.log_prob_positive(-eta), axis=1)
+            return log_p1 - log_p0
+        probs = self._mc_class_probs(design, X, draws)
+        logp = np.log(np.maximum(probs.mean(axis=2), np.finfo(float).tiny))
+        return logp - logsumexp(logp, axis=1, keepdims=True)
+
+    def _mc_class_probs(self, design, X, draws):
+        """Softmax probabilities per draw, shape (n, K, n_draws)."""
+        q, d, nc = design.q, design.d, design.n_coef
+        out = np.empty((len(X), q, len(draws)))
+        for s, theta in enumerate(draws):
+            W = theta[:nc].reshape(q, d)
+            eta = X @ W.T
+            if design.fit_intercept:
+                eta += theta[nc:]
+            eta -= eta.max(axis=1, keepdims=True)
+            P = np.exp(eta)
+            out[:, :, s] = P / P.sum(axis=1, keepdims=True)
+        return out
+
+    def predict_interval(self, X, level=0.9):
+        """Equal-tailed credible bounds for the class probabilities.
+
+        Parameters
+        ----------
+        X : array-like of shape (n_samples, n_features)
+        level : float in (0, 1)
+            Posterior probability inside the bounds.
+
+        Returns
+        -------
+        lower, upper : ndarray
+            Binary: shape (n_samples,), bounds of P(y = classes_[1] | x) under
+            the Gaussian posterior; exact quantiles, because the probability is
+            a monotone function of the Gaussian latent predictor.
+            Multiclass: shape (n_samples, K), Monte Carlo quantiles over
+            ``n_draws`` posterior draws (seeded by ``random_state``).
+        """
+        level = check_level(level)
+        X = self._validate_predict_data(X)
+        design = self._design_for_predict()
+        z = norm.ppf(0.5 + level / 2.0)
+        if design.q == 1:
+            mean, var = self._posterior.latent_moments(design, X)
+            half = z * np.sqrt(var)
+            return self._binary_link(mean - half), self._binary_link(mean + half)
+        draws = self._coef_draws(self.n_draws, self.random_state)
+        probs = self._mc_class_probs(design, X, draws)
+        alpha = (1.0 - level) / 2.0
+        return np.quantile(probs, alpha, axis=2), np.quantile(probs, 1.0 - alpha, axis=2)
+
+    def coef_table(self, level=0.9):
+        """Posterior summary of every parameter.
+
+        Parameters
+        ----------
+        level : float in (0, 1)
+
+        Returns
+        -------
+        pandas.DataFrame
+            One row a parameter, indexed by feature name and "intercept"
+            (multiclass: a (class, parameter) MultiIndex). Columns:
+            ``estimate`` (posterior mean = MAP), ``sd`` (posterior standard
+            deviation), ``lower`` and ``upper`` (equal-tailed credible
+            bounds at ``level``), ``sign_prob`` (posterior probability that
+            the parameter has the sign of its estimate, Phi(|m| / sd); a
+            posterior quantity, not a p-value). With ``prior_scale=None``
+            the spread is the maximum-likelihood standard error from the
+            observed information and the bounds are Wald intervals.
+        """
+        level = check_level(level)
+        check_is_fitted(self, "coef_")
+        mean = self.posterior_mean_
+        sd = np.sqrt(np.maximum(np.diag(self.posterior_cov_), 0.0))
+        z = norm.ppf(0.5 + level / 2.0)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            ratio = np.where(sd > 0, np.abs(mean) / sd, np.inf)
+        table = pd.DataFrame(
+            {
+                "estimate": mean,
+                "sd": sd,
+                "lower": mean - z * sd,
+                "upper": mean + z * sd,
+                "sign_prob": norm.cdf(ratio),
+            },
+            index=self._parameter_index(),
+        )
+        table.attrs["level"] = level
+        return table
+
+    def sample_coef(self, n, random_state=None):
+        """Draws from the Gaussian posterior over the parameters.
+
+        Parameters
+        ----------
+        n : int
+            Number of draws.
+        random_state : int, RandomState or None
+
+        Returns
+        -------
+        ndarray of shape (n, n_parameters)
+            Columns in the order of ``posterior_mean_``: the coefficient
+            row(s), then the intercept(s).
+        """
+        check_is_fitted(self, "coef_")
+        n = check_positive_int("n", n)
+        return self._coef_draws(n, random_state)

@@ -1,0 +1,123 @@
+"""The linear predictor eta = X W^T + b, evaluated block by block over rows.
+
+This is the only place that touches the feature matrix during a fit. It never
+copies X as a whole (the intercept is handled as a separate term, not as an
+appended column of ones), and it accumulates the loss, the gradient and the
+Hessian in one pass per Newton iteration, in blocks of rows small enough to
+stay in cache. The same blocked pass is what an out-of-core or distributed
+data source would provide.
+
+Parameter layout ("full" vector, length ``q * d + q`` with an intercept,
+``q * d`` without): the q coefficient rows one after the other, then the q
+intercepts. ``q`` is 1 for a binary model and K for a K-class softmax model.
+"""
+
+import numpy as np
+from scipy.linalg.blas import dsyrk
+
+_BLOCK_BYTES = 1 << 20  # ~1 MiB of X per block: fits in L2 on current CPUs
+
+
+class LinearDesign:
+    """Row-blocked linear predictor over a float64 feature matrix.
+
+    Parameters
+    ----------
+    X : ndarray of shape (n, d), float64
+        Used as is, never written to. C order makes the row blocks contiguous.
+    n_outputs : int
+        q, the number of linear predictors per row (1 or K).
+    fit_intercept : bool
+    block_rows : int, optional
+        Rows per block; by default about 1 MiB of X per block.
+    """
+
+    def __init__(self, X, n_outputs, fit_intercept, block_rows=None):
+        self.X = X
+        self.n, self.d = X.shape
+        self.q = int(n_outputs)
+        self.fit_intercept = bool(fit_intercept)
+        self.n_coef = self.q * self.d
+        self.p_full = self.n_coef + (self.q if fit_intercept else 0)
+        if block_rows is None:
+            block_rows = max(256, _BLOCK_BYTES // (8 * max(self.d, 1)))
+        self.block_rows = int(block_rows)
+
+    # -- parameter packing ------------------------------------------------
+    def split(self, theta):
+        """Coefficients (q, d) and intercepts (q,) from a full vector."""
+        W = theta[: self.n_coef].reshape(self.q, self.d)
+        if self.fit_intercept:
+            b = theta[self.n_coef :]
+        else:
+            b = np.zeros(self.q)
+        return W, b
+
+    def linear_predictor(self, theta, X=None):
+        """eta for every row: shape (n,) when q == 1, else (n, q)."""
+        X = self.X if X is None else X
+        W, b = self.split(theta)
+        if self.q == 1:
+            return X @ W[0] + b[0]
+        return X @ W.T + b
+
+    # -- one pass: loss, gradient, Hessian --------------------------------
+    def loss_grad_hess(self, likelihood, y, w, eta):
+        """Loss sum, gradient (p_full,) and Hessian (p_full, p_full) at ``eta``.
+
+        Parameters
+        ----------
+        likelihood : object with ``derivatives(y, eta, w)``
+        y, w : ndarray of shape (n,)
+        eta : ndarray of shape (n,) or (n, q)
+        """
+        d, q, p = self.d, self.q, self.p_full
+        grad = np.zeros(p)
+        hess = np.zeros((p, p))
+        # X^T diag(h) X of a binary model goes through dsyrk, which accumulates
+        # in place only into a Fortran-contiguous array of its own.
+        hxx = np.zeros((d, d), order="F") if q == 1 else None
+        loss = 0.0
+        for start in range(0, self.n, self.block_rows):
+            stop = min(start + self.block_rows, self.n)
+            Xb = self.X[start:stop]
+            lb, g, h = likelihood.derivatives(y[start:stop], eta[start:stop], w[start:stop])
+            loss += lb
+            if q == 1:
+                hxx = self._accumulate_binary(Xb, g, h, grad, hess, hxx)
+            else:
+                self._accumulate_multi(Xb, g, h, grad, hess)
+        if q == 1:
+            hess[:d, :d] = hxx
+        # Only the upper triangle was accumulated.
+        hess = np.triu(hess) + np.triu(hess, 1).T
+        return loss, grad, hess
+
+    def _accumulate_binary(self, Xb, g, h, grad, hess, hxx):
+        d = self.d
+        grad[:d] += Xb.T @ g
+        # h >= 0 for log-concave likelihoods, so X^T diag(h) X is a syrk of
+        # the sqrt(h)-scaled block (a block-sized copy, never a copy of X).
+        A = Xb * np.sqrt(h)[:, None]
+        hxx = dsyrk(1.0, A.T, beta=1.0, c=hxx, trans=0, lower=0, overwrite_c=1)
+        if self.fit_intercept:
+            grad[d] += g.sum()
+            hess[:d, d] += Xb.T @ h
+            hess[d, d] += h.sum()
+        return hxx
+
+    def _accumulate_multi(self, Xb, g, h, grad, hess):
+        d, q, nc = self.d, self.q, self.n_coef
+        grad[:nc] += (g.T @ Xb).ravel()
+        for k in range(q):
+            rk = slice(k * d, (k + 1) * d)
+            for l in range(k, q):
+                rl = slice(l * d, (l + 1) * d)
+                hess[rk, rl] += Xb.T @ (Xb * h[:, k, l][:, None])
+        if self.fit_intercept:
+            grad[nc:] += g.sum(axis=0)
+            hkl = h.reshape(len(Xb), q * q)
+            cross = (Xb.T @ hkl).reshape(d, q, q)  # cross[:, k, l] = X^T h[:, k, l]
+            for k in range(q):
+                hess[k * d : (k + 1) * d, nc:] += cross[:, k, :]
+            hess[nc:, nc:] += h.sum(axis=0)

@@ -1,0 +1,83 @@
+"""Pointwise likelihoods of the linear predictor.
+
+A likelihood here knows nothing about features or coefficients: it maps the
+linear predictor ``eta`` of a block of rows to the weighted negative
+log-likelihood, its first derivative ``g`` and its second derivative ``h``
+with respect to ``eta``. The design matrix (``_design.py``) maps these to
+coefficient space and the Newton solver (``_newton.py``) does the rest, so a
+new model needs one class here and one thin estimator.
+
+Conventions
+-----------
+Binary likelihoods (``n_outputs == 1``) take ``y`` in {0, 1} (float64, shape
+(n,)), ``eta`` of shape (n,) and return ``g`` and ``h`` of shape (n,).
+Multiclass likelihoods (``n_outputs == K``) take integer class codes ``y`` of
+shape (n,), ``eta`` of shape (n, K) and return ``g`` of shape (n, K) and ``h``
+of shape (n, K, K). All returned quantities already include the row weights
+``w`` (shape (n,), non-negative).
+"""
+
+import numpy as np
+
+from ._special import expit, log_expit, softplus
+
+
+class BinaryLogistic:
+    """Bernoulli likelihood with the logit link, P(y = 1 | eta) = sigmoid(eta)."""
+
+    n_outputs = 1
+    name = "logistic"
+
+    def loss(self, y, eta, w):
+        """Weighted sum of -log p(y | eta); a float."""
+        # -log p = softplus(eta) - y * eta, exact for either label and any eta.
+        return float(w @ (softplus(eta) - y * eta))
+
+    def derivatives(self, y, eta, w):
+        """Loss sum, g = w (p - y) and h = w p (1 - p), each of shape (n,)."""
+        p = expit(eta)
+        loss = float(w @ (softplus(eta) - y * eta))
+        g = w * (p - y)
+        # p (1 - p) = sigmoid(eta) sigmoid(-eta): no cancellation near p = 1.
+        h = w * p * expit(-eta)
+        return loss, g, h
+
+    def log_prob_positive(self, eta):
+        """log P(y = 1 | eta), shape of ``eta``."""
+        return log_expit(eta)
+
+
+class MultinomialLogistic:
+    """Categorical likelihood with the softmax link over K linear predictors."""
+
+    name = "softmax"
+
+    def __init__(self, n_classes):
+        self.n_outputs = int(n_classes)
+
+    @staticmethod
+    def _log_softmax(eta):
+        shifted = eta - eta.max(axis=1, keepdims=True)
+        return shifted - np.log(np.exp(shifted).sum(axis=1, keepdims=True))
+
+    def loss(self, y, eta, w):
+        """Weighted sum of -log p(y | eta); a float."""
+        logp = self._log_softmax(eta)
+        return float(-(w @ logp[np.arange(len(y)), y]))
+
+    def derivatives(self, y, eta, w):
+        """Loss sum, g = w (p - onehot(y)) of shape (n, K), h of shape (n, K, K).
+
+        h[i] = w_i (diag(p_i) - p_i p_i^T), the softmax Hessian.
+        """
+        logp = self._log_softmax(eta)
+        rows = np.arange(len(y))
+        loss = float(-(w @ logp[rows, y]))
+        p = np.exp(logp)
+        g = p * w[:, None]
+        g[rows, y] -= w
+        wp = p * w[:, None]
+        h = -wp[:, :, None] * p[:, None, :]
+        k = np.arange(self.n_outputs)
+        h[:, k, k] += wp
+        return loss, g, h
