@@ -1,0 +1,714 @@
+"""Invented demo data: an orchard cooperative's apple-lot intake log.
+
+Everything here is simulated from a seed; no row describes a real orchard,
+lot or grader. The scenario gives examples, documentation and the report's
+demo a data set whose ground truth is known exactly, including which labels
+were corrupted.
+
+Scenario
+--------
+A cooperative measures every apple lot at intake and a grader decides its
+``storage_grade``. One row is one lot:
+
+======================  =======  ==============================================
+column                  dtype    meaning (range)
+======================  =======  ==============================================
+``lot_id``              str      ``"L0001"``, ``"L0002"``, ... (unique)
+``orchard``             str      orchard block, one of five invented names;
+                                 shifts bloom timing and fruit size, but has no
+                                 effect on the grade given the measurements
+``firmness_n``          float    flesh firmness, newtons, 0.1 N (50 - 90)
+``soluble_solids_brix`` float    soluble solids, degrees Brix, 0.1 (10 - 16)
+``starch_index``        int      starch-pattern index (1 - 8); rises with
+                                 ripeness
+``days_since_bloom``    int      days from full bloom to harvest (120 - 170)
+``fruit_mass_g``        int      mean fruit mass, grams (120 - 260)
+``bruise_share_pct``    float    share of bruised fruit, percent, 0.1 (0 - 15)
+``intake_temp_c``       float    air temperature at intake, deg C (2 - 28);
+                                 pure noise: independent of every other column
+                                 and of the grade
+``storage_grade``       str      the grader's label (possibly corrupted)
+======================  =======  ==============================================
+
+The measurements are correlated the way ripening makes them: a latent
+ripeness grows with ``days_since_bloom``; starch index and soluble solids rise
+with it, firmness falls with it (and with fruit mass), bruising grows a little
+with it.
+
+Ground truth
+------------
+Labels are drawn from a logistic (binary) or softmax (three-class) model that
+is linear in the standardised features ``z_j = (x_j - center_j) / scale_j``,
+with the fixed constants below (close to, not exactly, the population mean and
+standard deviation; they are stored in ``df.attrs`` so a fit on the same
+scale can be compared with the truth exactly).
+
+=======================  ======  =====  ==========  ==============  ==========
+feature                  center  scale  binary:     three-class vs  reference
+                                        long_stor.  fresh_market    long_stor.
+=======================  ======  =====  ==========  ==============  ==========
+intercept                                    0.30            0.30       -0.40
+``firmness_n``             70.5   7.80       1.20            0.70        1.50
+``soluble_solids_brix``    13.0   1.15       0.60            0.80        0.50
+``starch_index``            4.6   1.70      -0.90           -0.20       -1.00
+``days_since_bloom``      145.5   9.50      -0.30            0.00       -0.30
+``fruit_mass_g``          191.5  26.70      -0.40            0.30       -0.20
+``bruise_share_pct``        3.0   2.60      -1.00           -0.90       -1.60
+``intake_temp_c``          14.0   3.50       0.00            0.00        0.00
+=======================  ======  =====  ==========  ==============  ==========
+
+* Binary: classes ``["early_sale", "long_storage"]`` (sorted, so
+  ``long_storage`` is ``classes_[1]`` in scikit-learn's order);
+  ``P(long_storage | x) = sigmoid(intercept + z @ coef)``. About 55 % of clean
+  labels are ``long_storage``.
+* Three classes: ``["fresh_market", "juice", "long_storage"]``; softmax with
+  ``juice`` as the reference class (linear predictor fixed at 0). Only
+  differences between classes are identified, so compare a fit's
+  ``coef_[k] - coef_[juice]`` with the columns above. Each class holds about a
+  third of the clean labels.
+
+On the original scale a coefficient is ``coef_j / scale_j`` and the intercept
+is ``intercept - sum_j coef_j * center_j / scale_j``; ``df.attrs`` holds both.
+
+Label corruption
+----------------
+After the clean labels are drawn, exactly ``round(flip_far * n_lots)`` labels
+are flipped *far* from the decision boundary, sampled at random among the
+``2 * k`` rows with the largest clean-label margin (linear predictor of the
+clean label minus the largest other one, i.e. rows the truth labels
+confidently), and exactly ``round(flip_near * n_lots)`` labels *near* it,
+sampled among the ``2 * k`` remaining rows with the smallest gap between the
+two largest linear predictors. A flipped binary label takes the other class; a
+flipped three-class label takes one of the two other classes at random.
+``round`` is Python's (half to even).
+
+Where the truth lives
+---------------------
+Only in ``df.attrs`` (plain lists, dicts, floats and strings: JSON and pickle
+friendly), never in columns, so a fit on "every numeric column but the target"
+cannot pick it up. The per-row truth is kept small on purpose: pandas deep
+copies ``attrs`` into every derived frame, so only the corrupted rows are
+listed (by ``lot_id``); the true probabilities are an exact function of the
+recorded measurements and :func:`orchard_ground_truth` rebuilds them.
+"""
+
+from __future__ import annotations
+
+import numbers
+import operator
+
+import numpy as np
+import pandas as pd
+from scipy.special import softmax
+
+__all__ = [
+    "FEATURES",
+    "NOISE_FEATURES",
+    "TARGET",
+    "make_orchard_lots",
+    "orchard_arrays",
+    "orchard_ground_truth",
+    "orchard_true_coefficients",
+]
+
+#: Name of the label column.
+TARGET = "storage_grade"
+
+#: The seven measurements the ground truth uses, in column order.
+FEATURES = (
+    "firmness_n",
+    "soluble_solids_brix",
+    "starch_index",
+    "days_since_bloom",
+    "fruit_mass_g",
+    "bruise_share_pct",
+    "intake_temp_c",
+)
+
+#: Measurements with zero true effect.
+NOISE_FEATURES = ("intake_temp_c",)
+
+_CENTER = (70.5, 13.0, 4.6, 145.5, 191.5, 3.0, 14.0)
+_SCALE = (7.8, 1.15, 1.7, 9.5, 26.7, 2.6, 3.5)
+
+_ORCHARDS = ("Hillcrest", "Riverbend", "Old Mill", "Cedar Slope", "North Terrace")
+# Per-block shifts give the orchard column a real association with the
+# measurements (and so, marginally, with the grade) while the grade stays
+# independent of it given the measurements.
+_ORCHARD_DAY_SHIFT = (-4.0, 0.0, 3.0, -1.0, 5.0)
+_ORCHARD_MASS_SHIFT = (10.0, -5.0, 0.0, 15.0, -12.0)
+
+# Standardised-scale truth; the reference class (if any) has no entry.
+_TRUTH = {
+    2: {
+        "classes": ("early_sale", "long_storage"),
+        "reference": "early_sale",
+        "coef": {"long_storage": (1.2, 0.6, -0.9, -0.3, -0.4, -1.0, 0.0)},
+        "intercept": {"long_storage": 0.3},
+    },
+    3: {
+        "classes": ("fresh_market", "juice", "long_storage"),
+        "reference": "juice",
+        "coef": {
+            "fresh_market": (0.7, 0.8, -0.2, 0.0, 0.3, -0.9, 0.0),
+            "long_storage": (1.5, 0.5, -1.0, -0.3, -0.2, -1.6, 0.0),
+        },
+        "intercept": {"fresh_market": 0.3, "long_storage": -0.4},
+    },
+}
+
+# A far flip is drawn from this many times k top-margin rows, so that it is
+# random but still confidently wrong; likewise for near flips.
+_POOL_FACTOR = 2
+
+
+# --------------------------------------------------------------------------
+# validation
+# --------------------------------------------------------------------------
+
+
+def _check_n_lots(n_lots):
+    if isinstance(n_lots, bool) or not isinstance(n_lots, numbers.Real):
+        raise TypeError(f"n_lots must be an integer, got {n_lots!r}.")
+    if not isinstance(n_lots, numbers.Integral):
+        if not (np.isfinite(n_lots) and float(n_lots).is_integer()):
+            raise ValueError(f"n_lots must be a whole number, got {n_lots!r}.")
+    n = int(n_lots)
+    if n < 10:
+        raise ValueError(f"n_lots must be at least 10, got {n}.")
+    return n
+
+
+def _check_share(value, name):
+    if isinstance(value, bool) or not isinstance(value, numbers.Real):
+        raise TypeError(f"{name} must be a number in [0, 1), got {value!r}.")
+    value = float(value)
+    if not (0.0 <= value < 1.0):
+        raise ValueError(f"{name} must lie in [0, 1), got {value!r}.")
+    return value
+
+
+def _check_params(n_lots, n_classes, flip_far, flip_near):
+    n = _check_n_lots(n_lots)
+    if isinstance(n_classes, bool) or n_classes not in (2, 3):
+        raise ValueError(f"n_classes must be 2 or 3, got {n_classes!r}.")
+    far = _check_share(flip_far, "flip_far")
+    near = _check_share(flip_near, "flip_near")
+    if far + near >= 1.0:
+        raise ValueError(
+            f"flip_far + flip_near must be below 1, got {far} + {near} = {far + near}."
+        )
+    return n, int(n_classes), far, near
+
+
+def _check_random_state(random_state):
+    if random_state is None:
+        return np.random.default_rng(), None
+    if isinstance(random_state, np.random.Generator):
+        return random_state, None
+    if isinstance(random_state, numbers.Integral) and not isinstance(random_state, bool):
+        seed = int(random_state)
+        if seed < 0:
+            raise ValueError(f"random_state must be non-negative, got {seed}.")
+        return np.random.default_rng(seed), seed
+    raise TypeError(
+        "random_state must be None, a non-negative int or a numpy.random.Generator, "
+        f"got {random_state!r}."
+    )
+
+
+# --------------------------------------------------------------------------
+# simulation
+# --------------------------------------------------------------------------
+
+
+def _draw_measurements(n, rng):
+    """Correlated intake measurements, already rounded to recording precision.
+
+    Returns
+    -------
+    orchard : ndarray of shape (n,), int
+        Orchard block codes in ``[0, 5)``.
+    M : ndarray of shape (7, n), float64
+        One row per feature, in the order of ``FEATURES``, original scale.
+        Feature-major because every consumer reads whole columns.
+    """
+    orchard = rng.integers(0, len(_ORCHARDS), size=n)
+    # The seven noise rows are turned into the seven measurements in place:
+    # at a million lots, fresh temporaries cost more than the arithmetic.
+    M = rng.standard_normal((7, n))
+    firmness, brix, starch, days, mass, bruise, temp = M
+    ripeness = rng.standard_normal(n)
+
+    np.multiply(days, 9.0, out=days)
+    days += 145.0
+    days += np.asarray(_ORCHARD_DAY_SHIFT)[orchard]
+    np.clip(np.rint(days, out=days), 120, 170, out=days)
+
+    # Ripeness tracks the calendar but not exactly (site and weather).
+    ripeness *= 0.6
+    ripeness += (days - 145.0) / 9.0
+
+    starch *= 0.8
+    starch += 4.5 + 1.3 * ripeness
+    np.clip(np.rint(starch, out=starch), 1, 8, out=starch)
+
+    mass *= 25.0
+    mass += 190.0
+    mass += np.asarray(_ORCHARD_MASS_SHIFT)[orchard]
+    np.clip(np.rint(mass, out=mass), 120, 260, out=mass)
+
+    firmness *= 5.0
+    firmness += 71.0 - 5.0 * ripeness - 0.04 * (mass - 190.0)
+    np.clip(np.round(firmness, 1, out=firmness), 50.0, 90.0, out=firmness)
+
+    brix *= 0.9
+    brix += 13.0 + 0.6 * ripeness
+    np.clip(np.round(brix, 1, out=brix), 10.0, 16.0, out=brix)
+
+    bruise[:] = rng.gamma(1.5, 2.0 * np.exp(0.15 * ripeness))
+    np.clip(np.round(bruise, 1, out=bruise), 0.0, 15.0, out=bruise)
+
+    temp *= 3.5
+    temp += 14.0
+    np.clip(np.round(temp, 1, out=temp), 2.0, 28.0, out=temp)
+    return orchard, M
+
+
+def _truth_record(n_classes):
+    """Plain-python description of the true model (goes into ``attrs``)."""
+    spec = _TRUTH[n_classes]
+    coef_std, coef_orig, icpt_std, icpt_orig = {}, {}, {}, {}
+    for cls in spec["classes"]:
+        if cls == spec["reference"]:
+            beta = (0.0,) * len(FEATURES)
+            alpha = 0.0
+        else:
+            beta = spec["coef"][cls]
+            alpha = spec["intercept"][cls]
+        coef_std[cls] = {f: float(b) for f, b in zip(FEATURES, beta, strict=True)}
+        coef_orig[cls] = {
+            f: float(b / s) for f, b, s in zip(FEATURES, beta, _SCALE, strict=True)
+        }
+        icpt_std[cls] = float(alpha)
+        icpt_orig[cls] = float(
+            alpha - sum(b * c / s for b, c, s in zip(beta, _CENTER, _SCALE, strict=True))
+        )
+    return {
+        "classes": list(spec["classes"]),
+        "reference_class": spec["reference"],
+        "features": list(FEATURES),
+        "noise_features": list(NOISE_FEATURES),
+        "feature_center": {f: float(c) for f, c in zip(FEATURES, _CENTER, strict=True)},
+        "feature_scale": {f: float(s) for f, s in zip(FEATURES, _SCALE, strict=True)},
+        "coef_standardised": coef_std,
+        "intercept_standardised": icpt_std,
+        "coef_original": coef_orig,
+        "intercept_original": icpt_orig,
+    }
+
+
+def _standardise(M, truth):
+    """``(x - center) / scale`` of feature-major ``M``, shape (d, n)."""
+    center = np.array([truth["feature_center"][f] for f in truth["features"]])
+    scale = np.array([truth["feature_scale"][f] for f in truth["features"]])
+    Z = M - center[:, None]
+    Z /= scale[:, None]
+    return Z
+
+
+def _linear_predictor(Z, truth):
+    """True linear predictor of every class, shape (n, K); reference column 0.
+
+    ``Z`` is the standardised feature-major matrix, shape (d, n). Summed
+    feature by feature rather than by a matrix product so that every row's
+    value is independent of the others: the generator and
+    :func:`orchard_ground_truth` (on any subset of rows) then agree bit for
+    bit.
+    """
+    classes = truth["classes"]
+    eta = np.zeros((Z.shape[1], len(classes)))
+    for k, c in enumerate(classes):
+        col = np.full(Z.shape[1], truth["intercept_standardised"][c])
+        for j, f in enumerate(truth["features"]):
+            beta = truth["coef_standardised"][c][f]
+            if beta != 0.0:
+                col += beta * Z[j]
+        eta[:, k] = col
+    return eta
+
+
+def _margins(eta, y):
+    """Clean-label margin and gap between the two largest linear predictors.
+
+    Parameters
+    ----------
+    eta : ndarray of shape (n, K)
+    y : ndarray of shape (n,), int in ``[0, K)``
+
+    Returns
+    -------
+    margin : ndarray of shape (n,)
+        ``eta[y] - max_{k != y} eta[k]``; large and positive when the truth
+        is confident in the clean label.
+    gap : ndarray of shape (n,), >= 0
+        Distance (in log-odds) to the nearest decision boundary.
+    """
+    rows = np.arange(eta.shape[0])
+    own = eta[rows, y]
+    others = eta.copy()
+    others[rows, y] = -np.inf
+    margin = own - others.max(axis=1)
+    top2 = np.partition(eta, eta.shape[1] - 2, axis=1)[:, -2:]
+    gap = top2[:, 1] - top2[:, 0]
+    return margin, gap
+
+
+def _pick(candidates, score, k, rng, largest):
+    """Sample ``k`` of ``candidates`` among the ``_POOL_FACTOR * k`` extreme scores."""
+    if k == 0:
+        return np.empty(0, dtype=np.intp)
+    pool_size = min(candidates.size, _POOL_FACTOR * k)
+    s = -score[candidates] if largest else score[candidates]
+    if pool_size < candidates.size:
+        pool = candidates[np.argpartition(s, pool_size - 1)[:pool_size]]
+    else:
+        pool = candidates
+    return np.sort(rng.choice(pool, size=k, replace=False))
+
+
+def _simulate(n, n_classes, flip_far, flip_near, rng):
+    truth = _truth_record(n_classes)
+    orchard, M = _draw_measurements(n, rng)
+    eta = _linear_predictor(_standardise(M, truth), truth)
+    prob = softmax(eta, axis=1)
+
+    u = rng.random(n)
+    # Inverse-CDF draw; the last class also catches u beyond a rounded cumsum.
+    y_clean = np.minimum((u[:, None] >= np.cumsum(prob, axis=1)).sum(axis=1), n_classes - 1)
+
+    margin, gap = _margins(eta, y_clean)
+    k_far = round(flip_far * n)
+    k_near = round(flip_near * n)
+    far = _pick(np.arange(n), margin, k_far, rng, largest=True)
+    rest = np.ones(n, dtype=bool)
+    rest[far] = False
+    near = _pick(np.flatnonzero(rest), gap, k_near, rng, largest=False)
+
+    y = y_clean.copy()
+    flipped = np.concatenate([far, near])
+    y[flipped] = (y_clean[flipped] + rng.integers(1, n_classes, size=flipped.size)) % n_classes
+    return {
+        "truth": truth,
+        "orchard": orchard,
+        "M": M,
+        "y": y,
+        "y_clean": y_clean,
+        "far": far,
+        "near": near,
+    }
+
+
+def _lot_ids(n):
+    width = max(4, len(str(n)))
+    return [f"L{i:0{width}d}" for i in range(1, n + 1)]
+
+
+# --------------------------------------------------------------------------
+# public API
+# --------------------------------------------------------------------------
+
+
+def make_orchard_lots(
+    n_lots=400, *, n_classes=2, flip_far=0.10, flip_near=0.05, random_state=0
+):
+    """Simulate the orchard cooperative's intake log (invented data).
+
+    See the module docstring for the scenario, the ground-truth table and the
+    corruption rule.
+
+    Parameters
+    ----------
+    n_lots : int, default=400
+        Number of rows, at least 10 (an integral float such as ``1e6`` is
+        accepted). Vectorised: a million lots take about a second.
+    n_classes : {2, 3}, default=2
+        2: ``storage_grade`` in ``{"early_sale", "long_storage"}``;
+        3: in ``{"fresh_market", "juice", "long_storage"}``.
+    flip_far : float in [0, 1), default=0.10
+        Share of labels flipped far from the decision boundary; exactly
+        ``round(flip_far * n_lots)`` rows.
+    flip_near : float in [0, 1), default=0.05
+        Share of labels flipped near the decision boundary; exactly
+        ``round(flip_near * n_lots)`` rows. ``flip_far + flip_near < 1``.
+    random_state : int >= 0, numpy.random.Generator or None, default=0
+        Seed; the same int gives an identical frame.
+
+    Returns
+    -------
+    df : pandas.DataFrame of shape (n_lots, 10)
+        Columns ``lot_id, orchard, firmness_n, soluble_solids_brix,
+        starch_index, days_since_bloom, fruit_mass_g, bruise_share_pct,
+        intake_temp_c, storage_grade``; text columns have pandas' default
+        string dtype (``str`` on pandas 3, ``object`` on pandas 2), integer
+        measurements are int64, the others float64. ``df.attrs`` holds the
+        ground truth (plain python objects):
+
+        - ``"scenario"``, ``"description"``: identification, and that the
+          data are invented;
+        - ``"target"``: ``"storage_grade"``; ``"id_column"``: ``"lot_id"``;
+        - ``"classes"``: sorted class labels; ``"reference_class"``: the
+          class whose linear predictor is fixed at 0;
+        - ``"features"``: the seven measurements the truth uses, in order;
+          ``"noise_features"``: those with zero true effect;
+        - ``"feature_center"``, ``"feature_scale"``: ``{feature: float}``,
+          the standardisation the truth is stated on;
+        - ``"coef_standardised"``, ``"coef_original"``:
+          ``{class: {feature: float}}`` (the reference class all zeros);
+        - ``"intercept_standardised"``, ``"intercept_original"``:
+          ``{class: float}``;
+        - ``"corrupted"``: ``{"lot_id": [...], "kind": [...],
+          "clean_label": [...]}``, one entry per flipped row, kind ``"far"``
+          or ``"near"``;
+        - ``"n_corrupted"``: ``{"far": int, "near": int}``;
+        - ``"params"``: ``{"n_lots", "n_classes", "flip_far", "flip_near",
+          "random_state"}`` (``random_state`` is None unless an int seed was
+          given).
+
+    See Also
+    --------
+    orchard_ground_truth : per-row truth as a DataFrame.
+    orchard_true_coefficients : the true coefficients as a DataFrame.
+    orchard_arrays : the same simulation as bare arrays, for benchmarks.
+
+    Examples
+    --------
+    >>> from skbayeslogit.datasets import make_orchard_lots
+    >>> df = make_orchard_lots(200, random_state=1)
+    >>> df.shape
+    (200, 10)
+    >>> df.attrs["n_corrupted"]
+    {'far': 20, 'near': 10}
+    """
+    n, n_classes, flip_far, flip_near = _check_params(n_lots, n_classes, flip_far, flip_near)
+    rng, seed = _check_random_state(random_state)
+    sim = _simulate(n, n_classes, flip_far, flip_near, rng)
+    truth = sim["truth"]
+    classes = np.array(truth["classes"], dtype=object)
+    M = sim["M"]
+    lot_id = _lot_ids(n)
+
+    columns = {
+        "lot_id": lot_id,
+        "orchard": np.array(_ORCHARDS, dtype=object)[sim["orchard"]],
+    }
+    for j, name in enumerate(FEATURES):
+        is_count = name in ("starch_index", "days_since_bloom", "fruit_mass_g")
+        columns[name] = M[j].astype(np.int64) if is_count else M[j]
+    columns[TARGET] = classes[sim["y"]]
+    df = pd.DataFrame(columns)
+
+    far, near = sim["far"], sim["near"]
+    flipped = np.concatenate([far, near])
+    attrs = {
+        "scenario": "orchard_lots",
+        "description": (
+            "Invented apple-lot intake log simulated from a known "
+            f"{'logistic' if n_classes == 2 else 'softmax'} ground truth with "
+            "deliberately corrupted labels; not real data."
+        ),
+        "target": TARGET,
+        "id_column": "lot_id",
+        **truth,
+        "corrupted": {
+            "lot_id": [lot_id[i] for i in flipped.tolist()],
+            "kind": ["far"] * far.size + ["near"] * near.size,
+            "clean_label": classes[sim["y_clean"][flipped]].tolist(),
+        },
+        "n_corrupted": {"far": int(far.size), "near": int(near.size)},
+        "params": {
+            "n_lots": n,
+            "n_classes": n_classes,
+            "flip_far": flip_far,
+            "flip_near": flip_near,
+            "random_state": seed,
+        },
+    }
+    df.attrs.update(attrs)
+    return df
+
+
+def orchard_arrays(
+    n_lots,
+    *,
+    n_classes=2,
+    d_extra=0,
+    flip_far=0.10,
+    flip_near=0.05,
+    standardise=True,
+    random_state=0,
+):
+    """The orchard simulation as bare arrays, for benchmarks and solver tests.
+
+    With ``d_extra=0`` and the same other arguments, ``X`` and ``y`` are
+    exactly the measurements and labels of :func:`make_orchard_lots`
+    (standardised or not), without building a DataFrame.
+
+    Parameters
+    ----------
+    n_lots : int
+        Number of rows, at least 10 (an integral float such as ``1e6`` is
+        accepted).
+    n_classes : {2, 3}, default=2
+    d_extra : int >= 0, default=0
+        Extra independent standard-normal columns with zero true effect,
+        appended after the seven measurements (e.g. ``d_extra=13`` gives
+        d = 20). They are drawn after everything else, so the first seven
+        columns and ``y`` do not depend on ``d_extra``.
+    flip_far, flip_near : float in [0, 1), default=0.10, 0.05
+        As in :func:`make_orchard_lots`.
+    standardise : bool, default=True
+        Return the measurements on the standardised scale of the ground truth
+        (``(x - center) / scale``, see ``FEATURES`` and the module docstring)
+        instead of the original units.
+    random_state : int >= 0, numpy.random.Generator or None, default=0
+
+    Returns
+    -------
+    X : ndarray of shape (n_lots, 7 + d_extra), float64, C-contiguous
+        Columns: ``FEATURES`` in order, then the extra noise columns.
+    y : ndarray of shape (n_lots,), int64 in ``[0, n_classes)``
+        Index into the sorted class labels (binary: 1 = ``long_storage``).
+    """
+    n, n_classes, flip_far, flip_near = _check_params(n_lots, n_classes, flip_far, flip_near)
+    if isinstance(d_extra, bool) or not isinstance(d_extra, numbers.Integral):
+        raise TypeError(f"d_extra must be a non-negative int, got {d_extra!r}.")
+    d_extra = operator.index(d_extra)
+    if d_extra < 0:
+        raise ValueError(f"d_extra must be non-negative, got {d_extra}.")
+    rng, _ = _check_random_state(random_state)
+    sim = _simulate(n, n_classes, flip_far, flip_near, rng)
+    M = _standardise(sim["M"], sim["truth"]) if standardise else sim["M"]
+    X = np.empty((n, len(FEATURES) + d_extra))
+    X[:, : len(FEATURES)] = M.T
+    if d_extra:
+        X[:, len(FEATURES) :] = rng.standard_normal((n, d_extra))
+    return X, sim["y"].astype(np.int64)
+
+
+def _require_truth(df):
+    attrs = getattr(df, "attrs", None)
+    if not isinstance(attrs, dict) or attrs.get("scenario") != "orchard_lots":
+        raise ValueError(
+            "df carries no orchard ground truth in df.attrs; pass a frame made by "
+            "make_orchard_lots (operations that drop attrs, such as some merges "
+            "and concatenations, lose it)."
+        )
+    return attrs
+
+
+def orchard_ground_truth(df):
+    """Per-row ground truth of a frame made by :func:`make_orchard_lots`.
+
+    Works on any row subset or reordering of such a frame, as long as
+    ``df.attrs`` and the measurement columns survive: corrupted rows are
+    matched by ``lot_id`` and the true probabilities are recomputed from the
+    measurements.
+
+    Parameters
+    ----------
+    df : pandas.DataFrame
+        Output of :func:`make_orchard_lots` (or rows of it).
+
+    Returns
+    -------
+    truth : pandas.DataFrame, indexed like ``df``
+        Columns:
+
+        - ``lot_id``;
+        - ``observed_label``: the (possibly corrupted) ``storage_grade``;
+        - ``clean_label``: the label drawn from the true model;
+        - ``label_corrupted``: bool;
+        - ``corruption``: ``"far"``, ``"near"`` or ``"none"``;
+        - ``true_prob_<class>`` for every class: true P(class | x), in [0, 1];
+        - ``true_prob_clean``: true probability of the clean label;
+        - ``clean_margin``: linear predictor of the clean label minus the
+          largest other one (log-odds; large positive = confidently correct);
+        - ``boundary_gap``: gap between the two largest linear predictors,
+          >= 0 (small = near the decision boundary);
+        - binary only, ``true_logit``: true log-odds of ``long_storage``.
+    """
+    attrs = _require_truth(df)
+    classes = list(attrs["classes"])
+    features = list(attrs["features"])
+    M = np.array([df[f].to_numpy(dtype=np.float64) for f in features])
+    eta = _linear_predictor(_standardise(M, attrs), attrs)
+    prob = softmax(eta, axis=1)
+
+    lot_id = df[attrs["id_column"]].astype(object).to_numpy()
+    observed = df[attrs["target"]].astype(object).to_numpy()
+    corrupted = attrs["corrupted"]
+    kind_of = dict(zip(corrupted["lot_id"], corrupted["kind"], strict=True))
+    clean_of = dict(zip(corrupted["lot_id"], corrupted["clean_label"], strict=True))
+    kind = np.array([kind_of.get(i, "none") for i in lot_id], dtype=object)
+    clean = np.array([clean_of.get(i, o) for i, o in zip(lot_id, observed, strict=True)],
+                     dtype=object)
+    code = {c: k for k, c in enumerate(classes)}
+    y_clean = np.array([code[c] for c in clean], dtype=np.intp)
+    margin, gap = _margins(eta, y_clean)
+
+    out = {
+        "lot_id": lot_id,
+        "observed_label": observed,
+        "clean_label": clean,
+        "label_corrupted": kind != "none",
+        "corruption": kind,
+    }
+    for k, c in enumerate(classes):
+        out[f"true_prob_{c}"] = prob[:, k]
+    out["true_prob_clean"] = prob[np.arange(len(y_clean)), y_clean]
+    out["clean_margin"] = margin
+    out["boundary_gap"] = gap
+    if len(classes) == 2:
+        out["true_logit"] = eta[:, 1] - eta[:, 0]
+    return pd.DataFrame(out, index=df.index)
+
+
+def orchard_true_coefficients(df):
+    """The true coefficients of a frame made by :func:`make_orchard_lots`.
+
+    Parameters
+    ----------
+    df : pandas.DataFrame
+        Output of :func:`make_orchard_lots`; only ``df.attrs`` is read.
+
+    Returns
+    -------
+    coef : pandas.DataFrame
+        One row per (class, parameter), the intercept first; columns
+        ``class``, ``parameter`` (``"intercept"`` or a feature name),
+        ``standardised`` (truth on ``(x - center) / scale``), ``original``
+        (truth on the recorded units), ``center``, ``scale`` (NaN for the
+        intercept). Binary: only the positive class ``long_storage``.
+        Three classes: every class, the reference class ``juice`` all zeros.
+        ``df.set_index("parameter")`` lines a binary table up with a fitted
+        coefficient table.
+    """
+    attrs = _require_truth(df)
+    classes = list(attrs["classes"])
+    if len(classes) == 2:
+        classes = [c for c in classes if c != attrs["reference_class"]]
+    rows = []
+    for c in classes:
+        rows.append(
+            (c, "intercept", attrs["intercept_standardised"][c],
+             attrs["intercept_original"][c], np.nan, np.nan)
+        )
+        for f in attrs["features"]:
+            rows.append(
+                (c, f, attrs["coef_standardised"][c][f], attrs["coef_original"][c][f],
+                 attrs["feature_center"][f], attrs["feature_scale"][f])
+            )
+    return pd.DataFrame(
+        rows, columns=["class", "parameter", "standardised", "original", "center", "scale"]
+    )
