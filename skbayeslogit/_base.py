@@ -342,7 +342,7 @@ class GaussianPosteriorClassifier(LinearClassifierBase):
             return result, self._log_evidence(design, problem, result, scale)
 
         if self._prior_scale == "auto":
-            scale, result, log_ev = self._maximise_evidence(X, fit_at)
+            scale, result, log_ev = self._maximise_evidence(X, w, fit_at)
         else:
             scale = self._prior_scale
             result, log_ev = fit_at(scale)
@@ -413,15 +413,22 @@ class GaussianPosteriorClassifier(LinearClassifierBase):
             const += -0.5 * design.q * (LOG_2PI + 2.0 * np.log(self._intercept_scale))
         return float(-result.objective + 0.5 * problem.p_free * LOG_2PI - 0.5 * log_det + const)
 
-    def _maximise_evidence(self, X, fit_at):
+    def _maximise_evidence(self, X, w, fit_at):
         """prior_scale maximising the Laplace evidence, on a log scale.
 
         A coarse grid of nine scales, a decade apart around 1 / (median
-        feature sd), brackets the maximum; bounded Brent on log10(scale)
-        within one decade either side of the best grid point refines it.
-        Each fit starts from the nearest earlier solution.
+        weighted feature sd), brackets the maximum; bounded Brent on
+        log10(scale) within one decade either side of the best grid point
+        refines it. Each fit starts from the nearest earlier solution.
+
+        When the smallest scale wins, the data do not support any slope
+        (the evidence keeps rising as the prior squeezes them to zero, as for
+        pure-noise labels); that scale is returned as is, without a warning.
+        When the largest wins, the evidence may keep rising beyond the range
+        (typical of separated classes), and a warning says so.
         """
-        sd = X.std(axis=0)
+        mean = np.average(X, axis=0, weights=w)
+        sd = np.sqrt(np.average((X - mean) ** 2, axis=0, weights=w))
         sd = sd[sd > 0]
         ref = 1.0 / float(np.median(sd)) if len(sd) else 1.0
         centre = np.log10(ref)
@@ -441,15 +448,16 @@ class GaussianPosteriorClassifier(LinearClassifierBase):
 
         values = [neg_log_ev(u) for u in grid]
         best = int(np.argmin(values))
-        lo, hi = grid[max(best - 1, 0)], grid[min(best + 1, len(grid) - 1)]
-        minimize_scalar(neg_log_ev, bounds=(lo, hi), method="bounded", options={"xatol": 1e-3})
+        if best > 0:
+            lo, hi = grid[best - 1], grid[min(best + 1, len(grid) - 1)]
+            minimize_scalar(neg_log_ev, bounds=(lo, hi), method="bounded", options={"xatol": 1e-3})
         u_best = min(cache, key=lambda v: -cache[v][1])
-        if u_best <= grid[0] + 1e-6 or u_best >= grid[-1] - 1e-6:
+        if u_best >= grid[-1] - 1e-6:
             warnings.warn(
-                "the Laplace evidence is largest at the edge of the searched range of "
-                f"prior_scale ({10.0 ** grid[0]:.3g} to {10.0 ** grid[-1]:.3g}); the chosen "
-                "scale may not be the maximiser. Standardise the features or pass a "
-                "prior_scale.",
+                "the Laplace evidence is still rising at the largest prior_scale searched "
+                f"({10.0 ** grid[-1]:.3g}), as it does when the classes are (nearly) "
+                "separated; prior_scale_ is that edge. Check for separation, standardise "
+                "the features, or pass a prior_scale.",
                 UserWarning,
                 stacklevel=3,
             )
@@ -467,8 +475,11 @@ class GaussianPosteriorClassifier(LinearClassifierBase):
         # A recorded label fitted with probability 1 - 1e-12 or closer is what
         # an estimate drifting to infinity produces (separation).
         if design.q == 1:
-            # -log p(y | eta) < 1e-12 exactly when the signed margin > 27.6.
-            perfect_rows = np.where(y > 0.5, result.eta, -result.eta) > 27.6
+            # Binary links here are symmetric, p(y | eta) = P(y = 1 | s eta)
+            # with s = 2y - 1 (logit: -log p < 1e-12 when s eta > 27.6;
+            # probit: when s eta > 7.0).
+            margin = np.where(y > 0.5, result.eta, -result.eta)
+            perfect_rows = -likelihood.log_prob_positive(margin) < 1e-12
         else:
             logp = likelihood._log_softmax(result.eta)
             perfect_rows = logp[np.arange(len(y)), y.astype(int)] > -1e-12
@@ -556,7 +567,9 @@ class GaussianPosteriorClassifier(LinearClassifierBase):
         mean, var = self._posterior.latent_moments(design, X)
         if design.q == 1:
             if self.predictive == "map":
-                return mean
+                # The plug-in is the predictive with zero variance; the hook
+                # maps it to log-odds for links other than the logit.
+                return self._binary_decision(mean, np.zeros_like(var))
             return self._binary_decision(mean, var)
         if self.predictive == "map":
             return mean - logsumexp(mean, axis=1, keepdims=True)
