@@ -81,6 +81,11 @@ def check_options(name, value, options):
     return value
 
 
+def _plain(value):
+    """A numpy scalar as the Python value it holds, for readable messages."""
+    return value.item() if isinstance(value, np.generic) else value
+
+
 def _reject_non_numeric_frame(X):
     """Name the non-numeric columns of a DataFrame before numpy conversion."""
     if isinstance(X, pd.DataFrame):
@@ -130,7 +135,7 @@ class LinearClassifierBase(ClassifierMixin, BaseEstimator):
         n_classes = len(self.classes_)
         if n_classes < 2:
             raise ValueError(
-                f"y contains only one class ({self.classes_[0]!r}); a classifier needs "
+                f"y contains only one class ({_plain(self.classes_[0])!r}); a classifier needs "
                 "at least two classes."
             )
         if self._binary_only and n_classes > 2:
@@ -148,7 +153,8 @@ class LinearClassifierBase(ClassifierMixin, BaseEstimator):
             if len(present) < 2:
                 raise ValueError(
                     "only one class has positive sample_weight "
-                    f"({self.classes_[present[0]]!r}); a classifier needs at least two classes."
+                    f"({_plain(self.classes_[present[0]])!r}); a classifier needs at least two "
+                    "classes."
                 )
         return X, y_codes, w
 
