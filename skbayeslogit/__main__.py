@@ -1,0 +1,7 @@
+"""``python -m skbayeslogit``: the same command line as ``skbayeslogit``."""
+
+import sys
+
+from .cli import main
+
+sys.exit(main())
