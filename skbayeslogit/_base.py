@@ -271,6 +271,46 @@ def _zero_sum_basis(K):
     return Q
 
 
+def free_parameter_map(design, slope_prior, intercept_prior):
+    """T with full = T @ free, or None for the identity.
+
+    Parameters
+    ----------
+    design : LinearDesign
+    slope_prior, intercept_prior : bool
+        Whether the slopes / the intercepts have a proper prior.
+
+    Returns
+    -------
+    ndarray of shape (p_full, p_free) or None
+
+    Notes
+    -----
+    - Binary: identity.
+    - Multiclass with a slope prior and a flat intercept prior: the K
+      intercepts are constrained to sum to zero (the likelihood cannot see
+      their common shift and a flat prior does not fix it).
+    - Multiclass without a slope prior: the first class is the reference
+      (its coefficients and intercept are fixed at 0), as in the classical
+      multinomial logit.
+    """
+    q, d = design.q, design.d
+    if q == 1:
+        return None
+    p = design.p_full
+    if not slope_prior:
+        keep = list(range(d, d * q))
+        if design.fit_intercept:
+            keep += [design.n_coef + k for k in range(1, q)]
+        return np.eye(p)[:, keep]
+    if design.fit_intercept and not intercept_prior:
+        T = np.zeros((p, design.n_coef + q - 1))
+        T[: design.n_coef, : design.n_coef] = np.eye(design.n_coef)
+        T[design.n_coef :, design.n_coef :] = _zero_sum_basis(q)
+        return T
+    return None
+
+
 def _moderated_softmax_log(mean, cov):
     """Log of a moderated softmax, the multiclass analogue of sigma(kappa m).
 
@@ -380,31 +420,9 @@ class GaussianPosteriorClassifier(LinearClassifierBase):
         return self
 
     def _free_map(self, design):
-        """T: full = T @ free; None for the identity.
-
-        - Binary: identity.
-        - Multiclass with a slope prior and a flat intercept prior: the K
-          intercepts are constrained to sum to zero (the likelihood cannot
-          see their common shift and a flat prior does not fix it).
-        - Multiclass without a slope prior: the first class is the reference
-          (its coefficients and intercept are fixed at 0), as in the
-          classical multinomial logit.
-        """
-        q, d = design.q, design.d
-        if q == 1:
-            return None
-        p = design.p_full
-        if self._prior_scale is None:
-            keep = [j for j in range(d * q) if j >= d]
-            if design.fit_intercept:
-                keep += [design.n_coef + k for k in range(1, q)]
-            return np.eye(p)[:, keep]
-        if design.fit_intercept and self._intercept_scale is None:
-            T = np.zeros((p, design.n_coef + q - 1))
-            T[: design.n_coef, : design.n_coef] = np.eye(design.n_coef)
-            T[design.n_coef :, design.n_coef :] = _zero_sum_basis(q)
-            return T
-        return None
+        return free_parameter_map(
+            design, self._prior_scale is not None, self._intercept_scale is not None
+        )
 
     def _prior_precision(self, design, scale):
         prec = np.zeros(design.p_full)
