@@ -72,15 +72,20 @@ is ``intercept - sum_j coef_j * center_j / scale_j``; ``df.attrs`` holds both.
 
 Label corruption
 ----------------
-After the clean labels are drawn, exactly ``round(flip_far * n_lots)`` labels
-are flipped *far* from the decision boundary, sampled at random among the
-``2 * k`` rows with the largest clean-label margin (linear predictor of the
-clean label minus the largest other one, i.e. rows the truth labels
-confidently), and exactly ``round(flip_near * n_lots)`` labels *near* it,
-sampled among the ``2 * k`` remaining rows with the smallest gap between the
-two largest linear predictors. A flipped binary label takes the other class; a
-flipped three-class label takes one of the two other classes at random.
-``round`` is Python's (half to even).
+After the clean labels are drawn, the rows are split in two halves by their
+distance to the true decision boundary (the gap between the two largest true
+linear predictors): the ``n_lots // 2`` rows farthest from it form the *far*
+half, the others the *near* half. Exactly ``round(flip_far * n_far)`` labels
+of the far half are flipped, sampled at random among its rows whose clean
+label agrees with the truth's most probable class (so each far flip overturns
+a label the truth was confident about), and exactly
+``round(flip_near * n_near)`` labels of the near half, sampled at random.
+A share is therefore the share of *that half's* labels, so even
+``flip_far=0.3`` leaves the correct labels a majority everywhere: the
+setting in which a bounded loss can tell the mislabelled rows apart. A
+flipped binary label takes the other class; a flipped three-class label
+takes one of the two other classes at random. ``round`` is Python's (half to
+even).
 
 Where the truth lives
 ---------------------
@@ -157,11 +162,6 @@ _TRUTH = {
     },
 }
 
-# A far flip is drawn from this many times k top-margin rows, so that it is
-# random but still confidently wrong; likewise for near flips.
-_POOL_FACTOR = 2
-
-
 # --------------------------------------------------------------------------
 # validation
 # --------------------------------------------------------------------------
@@ -194,10 +194,6 @@ def _check_params(n_lots, n_classes, flip_far, flip_near):
         raise ValueError(f"n_classes must be 2 or 3, got {n_classes!r}.")
     far = _check_share(flip_far, "flip_far")
     near = _check_share(flip_near, "flip_near")
-    if far + near >= 1.0:
-        raise ValueError(
-            f"flip_far + flip_near must be below 1, got {far} + {near} = {far + near}."
-        )
     return n, int(n_classes), far, near
 
 
@@ -287,9 +283,7 @@ def _truth_record(n_classes):
             beta = spec["coef"][cls]
             alpha = spec["intercept"][cls]
         coef_std[cls] = {f: float(b) for f, b in zip(FEATURES, beta, strict=True)}
-        coef_orig[cls] = {
-            f: float(b / s) for f, b, s in zip(FEATURES, beta, _SCALE, strict=True)
-        }
+        coef_orig[cls] = {f: float(b / s) for f, b, s in zip(FEATURES, beta, _SCALE, strict=True)}
         icpt_std[cls] = float(alpha)
         icpt_orig[cls] = float(
             alpha - sum(b * c / s for b, c, s in zip(beta, _CENTER, _SCALE, strict=True))
@@ -364,17 +358,28 @@ def _margins(eta, y):
     return margin, gap
 
 
-def _pick(candidates, score, k, rng, largest):
-    """Sample ``k`` of ``candidates`` among the ``_POOL_FACTOR * k`` extreme scores."""
-    if k == 0:
-        return np.empty(0, dtype=np.intp)
-    pool_size = min(candidates.size, _POOL_FACTOR * k)
-    s = -score[candidates] if largest else score[candidates]
-    if pool_size < candidates.size:
-        pool = candidates[np.argpartition(s, pool_size - 1)[:pool_size]]
-    else:
-        pool = candidates
-    return np.sort(rng.choice(pool, size=k, replace=False))
+def split_halves(gap):
+    """Far and near halves of the rows by distance to the boundary.
+
+    Parameters
+    ----------
+    gap : ndarray of shape (n,)
+
+    Returns
+    -------
+    far, near : ndarray of int
+        Sorted row indices; ``far`` holds the ``n // 2`` largest gaps (ties
+        broken by row order).
+    """
+    order = np.argsort(-gap, kind="stable")
+    half = gap.size // 2
+    return np.sort(order[:half]), np.sort(order[half:])
+
+
+def flip_counts(n, flip_far, flip_near):
+    """Exact numbers of far and near flips for ``n`` rows."""
+    n_far = n // 2
+    return round(flip_far * n_far), round(flip_near * (n - n_far))
 
 
 def _simulate(n, n_classes, flip_far, flip_near, rng):
@@ -388,12 +393,14 @@ def _simulate(n, n_classes, flip_far, flip_near, rng):
     y_clean = np.minimum((u[:, None] >= np.cumsum(prob, axis=1)).sum(axis=1), n_classes - 1)
 
     margin, gap = _margins(eta, y_clean)
-    k_far = round(flip_far * n)
-    k_near = round(flip_near * n)
-    far = _pick(np.arange(n), margin, k_far, rng, largest=True)
-    rest = np.ones(n, dtype=bool)
-    rest[far] = False
-    near = _pick(np.flatnonzero(rest), gap, k_near, rng, largest=False)
+    k_far, k_near = flip_counts(n, flip_far, flip_near)
+    far_half, near_half = split_halves(gap)
+    confident = far_half[margin[far_half] > 0]
+    # Almost every far-half row agrees with the truth; should too few do,
+    # the rest of the half makes up the count.
+    pool = confident if confident.size >= k_far else far_half
+    far = np.sort(rng.choice(pool, size=k_far, replace=False))
+    near = np.sort(rng.choice(near_half, size=k_near, replace=False))
 
     y = y_clean.copy()
     flipped = np.concatenate([far, near])
@@ -419,9 +426,7 @@ def _lot_ids(n):
 # --------------------------------------------------------------------------
 
 
-def make_orchard_lots(
-    n_lots=400, *, n_classes=2, flip_far=0.10, flip_near=0.05, random_state=0
-):
+def make_orchard_lots(n_lots=400, *, n_classes=2, flip_far=0.20, flip_near=0.10, random_state=0):
     """Simulate the orchard cooperative's intake log (invented data).
 
     See the module docstring for the scenario, the ground-truth table and the
@@ -435,12 +440,13 @@ def make_orchard_lots(
     n_classes : {2, 3}, default=2
         2: ``storage_grade`` in ``{"early_sale", "long_storage"}``;
         3: in ``{"fresh_market", "juice", "long_storage"}``.
-    flip_far : float in [0, 1), default=0.10
-        Share of labels flipped far from the decision boundary; exactly
-        ``round(flip_far * n_lots)`` rows.
-    flip_near : float in [0, 1), default=0.05
-        Share of labels flipped near the decision boundary; exactly
-        ``round(flip_near * n_lots)`` rows. ``flip_far + flip_near < 1``.
+    flip_far : float in [0, 1), default=0.20
+        Share of the far half's labels that are flipped: exactly
+        ``round(flip_far * (n_lots // 2))`` rows (40 at the defaults).
+    flip_near : float in [0, 1), default=0.10
+        Share of the near half's labels that are flipped: exactly
+        ``round(flip_near * (n_lots - n_lots // 2))`` rows (20 at the
+        defaults).
     random_state : int >= 0, numpy.random.Generator or None, default=0
         Seed; the same int gives an identical frame.
 
@@ -543,8 +549,8 @@ def orchard_arrays(
     *,
     n_classes=2,
     d_extra=0,
-    flip_far=0.10,
-    flip_near=0.05,
+    flip_far=0.20,
+    flip_near=0.10,
     standardise=True,
     random_state=0,
 ):
@@ -565,7 +571,7 @@ def orchard_arrays(
         appended after the seven measurements (e.g. ``d_extra=13`` gives
         d = 20). They are drawn after everything else, so the first seven
         columns and ``y`` do not depend on ``d_extra``.
-    flip_far, flip_near : float in [0, 1), default=0.10, 0.05
+    flip_far, flip_near : float in [0, 1), default=0.20, 0.10
         As in :func:`make_orchard_lots`.
     standardise : bool, default=True
         Return the measurements on the standardised scale of the ground truth
@@ -651,8 +657,9 @@ def orchard_ground_truth(df):
     kind_of = dict(zip(corrupted["lot_id"], corrupted["kind"], strict=True))
     clean_of = dict(zip(corrupted["lot_id"], corrupted["clean_label"], strict=True))
     kind = np.array([kind_of.get(i, "none") for i in lot_id], dtype=object)
-    clean = np.array([clean_of.get(i, o) for i, o in zip(lot_id, observed, strict=True)],
-                     dtype=object)
+    clean = np.array(
+        [clean_of.get(i, o) for i, o in zip(lot_id, observed, strict=True)], dtype=object
+    )
     code = {c: k for k, c in enumerate(classes)}
     y_clean = np.array([code[c] for c in clean], dtype=np.intp)
     margin, gap = _margins(eta, y_clean)
@@ -701,13 +708,25 @@ def orchard_true_coefficients(df):
     rows = []
     for c in classes:
         rows.append(
-            (c, "intercept", attrs["intercept_standardised"][c],
-             attrs["intercept_original"][c], np.nan, np.nan)
+            (
+                c,
+                "intercept",
+                attrs["intercept_standardised"][c],
+                attrs["intercept_original"][c],
+                np.nan,
+                np.nan,
+            )
         )
         for f in attrs["features"]:
             rows.append(
-                (c, f, attrs["coef_standardised"][c][f], attrs["coef_original"][c][f],
-                 attrs["feature_center"][f], attrs["feature_scale"][f])
+                (
+                    c,
+                    f,
+                    attrs["coef_standardised"][c][f],
+                    attrs["coef_original"][c][f],
+                    attrs["feature_center"][f],
+                    attrs["feature_scale"][f],
+                )
             )
     return pd.DataFrame(
         rows, columns=["class", "parameter", "standardised", "original", "center", "scale"]
