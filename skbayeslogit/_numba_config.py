@@ -1,0 +1,127 @@
+"""How the package compiles and launches its numba kernels.
+
+Three decisions live here so that every kernel module makes them the same way.
+
+Caching
+    Kernels are compiled lazily (no signatures are given, so nothing is
+    compiled at import) and cached on disk with ``cache=True`` so that a second
+    process loads machine code instead of recompiling.  numba raises
+    ``RuntimeError`` at *decoration* time, i.e. during ``import``, when it finds
+    no writable cache directory (read-only site-packages, a read-only
+    ``NUMBA_CACHE_DIR``, a sandbox).  :func:`jit` catches exactly that and
+    builds the same kernel without a cache, so importing the package never
+    fails because of the cache; the price is a recompile in every process.
+
+Threading
+    numba's threading layer is a process-wide choice that belongs to the
+    application, so this module does not set ``numba.config.THREADING_LAYER``.
+    Instead every parallel launch of ours goes through :func:`launch`, which
+    makes our kernels safe under whichever layer is in use:
+
+    * the ``workqueue`` layer aborts the whole process when two Python threads
+      enter parallel regions at the same time (joblib's threading backend does
+      exactly that).  :func:`launch` takes a process-wide lock *without
+      blocking*; a thread that finds it taken runs the serial build of the same
+      kernel instead of waiting, so concurrent calls neither abort nor
+      serialise behind each other;
+    * GNU OpenMP (numba's ``omp`` layer on Linux) hangs in a child process
+      forked after its thread pool was started.  A fork hook records whether
+      that happened, and such a child runs serial kernels only;
+    * small inputs never pay for a parallel launch: below
+      :data:`PARALLEL_MIN_ELEMENTS` work items the serial build is used.
+
+    Serial and parallel builds run the same per-row code and there is no
+    reduction across rows, so both give bitwise identical results.
+
+Flags
+    ``fastmath`` is never used: the kernels rely on IEEE comparisons with
+    infinities and on ``x > 0`` support tests that fast-math may fold away.
+"""
+
+from __future__ import annotations
+
+import os
+import threading
+
+import numba
+
+__all__ = ["jit", "launch", "PARALLEL_MIN_ELEMENTS"]
+
+#: Number of (row x class) work items from which a parallel launch is used.
+#: Measured on the benchmark workloads: below this the thread wake-up costs
+#: more than the rows.
+PARALLEL_MIN_ELEMENTS = 1 << 15
+
+_launch_lock = threading.Lock()
+_parallel_forbidden = False
+
+
+def _reset_after_fork() -> None:
+    global _launch_lock, _parallel_forbidden
+    # A lock held by another thread at fork time would stay held for ever.
+    _launch_lock = threading.Lock()
+    try:
+        layer = numba.threading_layer()
+    except ValueError:
+        # No layer started in the parent: the child may start its own.
+        return
+    if layer == "omp":
+        _parallel_forbidden = True
+
+
+if hasattr(os, "register_at_fork"):
+    os.register_at_fork(after_in_child=_reset_after_fork)
+
+
+def jit(parallel: bool = False):
+    """Return a decorator compiling a kernel lazily, cached when possible.
+
+    Parameters
+    ----------
+    parallel : bool, default=False
+        Build with ``parallel=True`` (``numba.prange`` loops run threaded).
+
+    Returns
+    -------
+    decorator : callable
+        Maps a Python function to a numba dispatcher.  The dispatcher caches
+        compiled code on disk when a writable cache directory exists and
+        compiles in memory otherwise.
+    """
+
+    def decorate(func):
+        try:
+            return numba.njit(cache=True, parallel=parallel, nogil=True)(func)
+        except RuntimeError:
+            # numba: "cannot cache function ...: no locator available".
+            return numba.njit(cache=False, parallel=parallel, nogil=True)(func)
+
+    return decorate
+
+
+def launch(serial, parallel, work: int, *args):
+    """Call the parallel build of a kernel when it pays and is safe.
+
+    Parameters
+    ----------
+    serial, parallel : numba dispatchers
+        Two builds of the same kernel, without and with ``parallel=True``.
+    work : int
+        Number of work items (rows times classes), used against
+        :data:`PARALLEL_MIN_ELEMENTS`.
+    *args
+        Passed to the kernel.
+
+    Returns
+    -------
+    result
+        Whatever the kernel returns.
+    """
+    if work >= PARALLEL_MIN_ELEMENTS and not _parallel_forbidden and numba.get_num_threads() > 1:
+        lock = _launch_lock
+        if lock.acquire(blocking=False):
+            try:
+                return parallel(*args)
+            finally:
+                lock.release()
+    return serial(*args)
