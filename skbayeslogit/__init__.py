@@ -1,13 +1,23 @@
 """skbayeslogit: honest probabilities, coefficient intervals and label-noise
 robustness for linear classifiers, inside scikit-learn and pandas."""
 
+from . import accessor  # noqa: F401  (registers the df.bayeslogit accessor)
+from ._tempered import bitempered_loss, exp_t, log_t, tempered_softmax
 from .exceptions import CollinearityWarning, SeparationWarning
 from .laplace import LaplaceLogisticClassifier
+from .probit import ProbitClassifier
+from .tempered import TemperedLogisticClassifier
 
 __version__ = "0.1.0"
 
 __all__ = [
     "CollinearityWarning",
     "LaplaceLogisticClassifier",
+    "ProbitClassifier",
     "SeparationWarning",
+    "TemperedLogisticClassifier",
+    "bitempered_loss",
+    "exp_t",
+    "log_t",
+    "tempered_softmax",
 ]
