@@ -62,49 +62,104 @@ class LinearDesign:
         return X @ W.T + b
 
     # -- one pass: loss, gradient, Hessian --------------------------------
-    def loss_grad_hess(self, likelihood, y, w, eta):
-        """Loss sum, gradient (p_full,) and Hessian (p_full, p_full) at ``eta``.
+    def loss_grad_hess(self, likelihood, y, w, theta, eta=None):
+        """Loss sum, gradient and Hessian at ``theta``, and the predictor.
+
+        When ``eta`` is None the linear predictor is computed block by block
+        inside the pass, so each block of X is read from memory once and
+        then reused from cache for the gradient and the Hessian.
 
         Parameters
         ----------
         likelihood : object with ``derivatives(y, eta, w)``
         y, w : ndarray of shape (n,)
+        theta : ndarray of shape (p_full,)
+        eta : ndarray of shape (n,) or (n, q), optional
+            The linear predictor at ``theta``, when the caller has it.
+
+        Returns
+        -------
+        loss : float
+        grad : ndarray (p_full,)
+        hess : ndarray (p_full, p_full)
         eta : ndarray of shape (n,) or (n, q)
         """
-        d, q, p = self.d, self.q, self.p_full
+        if self.q == 1:
+            return self._loss_grad_hess_binary(likelihood, y, w, theta, eta)
+        p = self.p_full
+        W, b = self.split(theta)
+        if eta is None:
+            eta = np.empty((self.n, self.q))
+            fill = True
+        else:
+            fill = False
         grad = np.zeros(p)
         hess = np.zeros((p, p))
-        # X^T diag(h) X of a binary model goes through dsyrk, which accumulates
-        # in place only into a Fortran-contiguous array of its own.
-        hxx = np.zeros((d, d), order="F") if q == 1 else None
         loss = 0.0
         for start in range(0, self.n, self.block_rows):
             stop = min(start + self.block_rows, self.n)
             Xb = self.X[start:stop]
+            if fill:
+                np.matmul(Xb, W.T, out=eta[start:stop])
+                eta[start:stop] += b
             lb, g, h = likelihood.derivatives(y[start:stop], eta[start:stop], w[start:stop])
             loss += lb
-            if q == 1:
-                hxx = self._accumulate_binary(Xb, g, h, grad, hess, hxx)
-            else:
-                self._accumulate_multi(Xb, g, h, grad, hess)
-        if q == 1:
-            hess[:d, :d] = hxx
+            self._accumulate_multi(Xb, g, h, grad, hess)
         # Only the upper triangle was accumulated.
         hess = np.triu(hess) + np.triu(hess, 1).T
-        return loss, grad, hess
+        return loss, grad, hess, eta
 
-    def _accumulate_binary(self, Xb, g, h, grad, hess, hxx):
-        d = self.d
-        grad[:d] += Xb.T @ g
-        # h >= 0 for log-concave likelihoods, so X^T diag(h) X is a syrk of
-        # the sqrt(h)-scaled block (a block-sized copy, never a copy of X).
-        A = Xb * np.sqrt(h)[:, None]
-        hxx = dsyrk(1.0, A.T, beta=1.0, c=hxx, trans=0, lower=0, overwrite_c=1)
+    def _loss_grad_hess_binary(self, likelihood, y, w, theta, eta):
+        """The q == 1 pass: one dsyrk per block gives the whole Hessian.
+
+        h >= 0 for log-concave likelihoods, so with s = sqrt(h) the block
+        A = [s * X_b, s] (the intercept column is s itself) has
+        A^T A = [[X_b^T diag(h) X_b, X_b^T h], [h^T X_b, sum h]]: slopes,
+        slope-intercept and intercept entries from one BLAS call. A is one
+        block-sized buffer reused for every block, never a copy of X.
+        """
+        d, p = self.d, self.p_full
+        W, b = self.split(theta)
+        coef, b0 = W[0], float(b[0])
+        if eta is None:
+            eta = np.empty(self.n)
+            fill = True
+        else:
+            fill = False
+        rows = min(self.block_rows, self.n)
+        buf = np.empty((rows, p))
+        s = np.empty(rows)
+        gx = np.zeros(d)
+        gb = 0.0
+        # dsyrk accumulates in place only into a Fortran-contiguous array.
+        hess = np.zeros((p, p), order="F")
+        loss = 0.0
+        for start in range(0, self.n, rows):
+            stop = min(start + rows, self.n)
+            m = stop - start
+            Xb = self.X[start:stop]
+            eb = eta[start:stop]
+            if fill:
+                np.matmul(Xb, coef, out=eb)
+                if b0 != 0.0:
+                    eb += b0
+            lb, g, h = likelihood.derivatives(y[start:stop], eb, w[start:stop])
+            loss += lb
+            gx += Xb.T @ g
+            sb = np.sqrt(h, out=s[:m])
+            A = buf[:m]
+            np.multiply(Xb, sb[:, None], out=A[:, :d])
+            if self.fit_intercept:
+                gb += float(np.sum(g))
+                A[:, d] = sb
+            hess = dsyrk(1.0, A.T, beta=1.0, c=hess, trans=0, lower=0, overwrite_c=1)
+        grad = np.empty(p)
+        grad[:d] = gx
         if self.fit_intercept:
-            grad[d] += g.sum()
-            hess[:d, d] += Xb.T @ h
-            hess[d, d] += h.sum()
-        return hxx
+            grad[d] = gb
+        # Only the upper triangle was accumulated.
+        hess = np.triu(hess) + np.triu(hess, 1).T
+        return loss, grad, hess, eta
 
     def _accumulate_multi(self, Xb, g, h, grad, hess):
         d, q, nc = self.d, self.q, self.n_coef

@@ -19,7 +19,8 @@ of shape (n, K, K). All returned quantities already include the row weights
 
 import numpy as np
 
-from ._special import expit, log_expit, log_ndtr, probit_hessian_factor, softplus
+from ._logistic_kernel import logistic_derivatives, logistic_loss
+from ._special import log_expit, log_ndtr, probit_hessian_factor
 
 # log sqrt(2 pi): the normal density is exp(-z^2 / 2 - _HALF_LOG_2PI).
 _HALF_LOG_2PI = 0.5 * float(np.log(2.0 * np.pi))
@@ -33,17 +34,15 @@ class BinaryLogistic:
 
     def loss(self, y, eta, w):
         """Weighted sum of -log p(y | eta); a float."""
-        # -log p = softplus(eta) - y * eta, exact for either label and any eta.
-        return float(w @ (softplus(eta) - y * eta))
+        # -log p = softplus(eta) - y * eta, exact for either label and any eta;
+        # one fused compiled loop (see _logistic_kernel).
+        return logistic_loss(y, eta, w)
 
     def derivatives(self, y, eta, w):
         """Loss sum, g = w (p - y) and h = w p (1 - p), each of shape (n,)."""
-        p = expit(eta)
-        loss = float(w @ (softplus(eta) - y * eta))
-        g = w * (p - y)
-        # p (1 - p) = sigmoid(eta) sigmoid(-eta): no cancellation near p = 1.
-        h = w * p * expit(-eta)
-        return loss, g, h
+        # p (1 - p) is formed as e / (1 + e)^2 with e = exp(-|eta|): no
+        # cancellation near p = 1; one exponential per row for all three.
+        return logistic_derivatives(y, eta, w)
 
     def log_prob_positive(self, eta):
         """log P(y = 1 | eta), shape of ``eta``."""

@@ -9,10 +9,13 @@ full parameter vector (the identity unless a constraint, such as zero-sum
 multiclass intercepts, removes a direction that the likelihood cannot
 identify) and ``D`` is the diagonal prior precision (zero for flat priors).
 
-Each iteration makes one blocked pass over the data for the gradient and
-Hessian and one matrix-vector product for the step's change in the linear
-predictor; the Armijo backtracking then moves along ``eta + alpha * d_eta``
-without touching X again. The iteration stops when half the squared Newton
+Each iteration makes one blocked pass over the data: it computes the linear
+predictor of the trial point block by block and, with that block still in
+cache, the loss, gradient and Hessian there. The full Newton step is accepted
+in almost every iteration, and then the trial pass is already the next
+iteration's; only when the Armijo test fails does the backtracking move along
+``eta + alpha * d_eta`` (d_eta = eta_trial - eta) with loss-only passes that
+do not touch X. The iteration stops when half the squared Newton
 decrement, lambda^2 / 2 = -g^T delta / 2 (the quadratic model's estimate of
 E - min E, in nats), falls below ``tol``; the last full step is then taken
 and the Hessian of that iteration is kept as the posterior precision.
@@ -133,13 +136,18 @@ class NewtonProblem:
     def penalty(self, theta):
         return 0.5 * float(theta @ (self.prior_precision * theta))
 
-    def derivatives(self, phi, eta):
-        """E, its gradient and Hessian in free coordinates, and the NLL part."""
+    def derivatives(self, phi, eta=None):
+        """E, its gradient and Hessian in free coordinates, the NLL part, eta.
+
+        ``eta`` (the linear predictor at ``phi``) is computed inside the
+        data pass when not given.
+        """
         theta = self.to_full(phi)
-        loss, g, H = self.design.loss_grad_hess(self.likelihood, self.y, self.w, eta)
+        loss, g, H, eta = self.design.loss_grad_hess(self.likelihood, self.y, self.w, theta, eta)
         g = g + self.prior_precision * theta
         H[np.diag_indices_from(H)] += self.prior_precision
-        return loss + self.penalty(theta), self.to_free_grad(g), self.to_free_hess(H), loss
+        E = loss + self.penalty(theta)
+        return E, self.to_free_grad(g), self.to_free_hess(H), loss, eta
 
     def subsample(self, n_rows, seed=0):
         """The same problem on ``n_rows`` random rows, weights rescaled.
@@ -182,31 +190,38 @@ def newton_solve(problem, phi0, *, max_iter=100, tol=1e-8, armijo=1e-4):
     """
     design, lik = problem.design, problem.likelihood
     phi = np.array(phi0, dtype=np.float64)
-    eta = design.linear_predictor(problem.to_full(phi))
+    E, g, H, loss, eta = problem.derivatives(phi)
     converged = False
     n_iter = 0
     for n_iter in range(1, max_iter + 1):  # noqa: B007 - n_iter is reported
-        E, g, H, loss = problem.derivatives(phi, eta)
         L, jitter = _robust_cholesky(H)
         delta = -cho_solve((L, True), g, check_finite=False)
-        decrement = -float(g @ delta)
-        # eta is linear in the parameters, so this one product prices every
-        # trial step of the line search.
-        d_eta = design.linear_predictor(problem.to_full(delta))
+        decrement = -float(np.dot(g, delta))
         if decrement / 2.0 <= tol:
             # Quadratically convergent: the full step lands within about
             # decrement^2 of the optimum; the Hessian of this iterate is the
             # posterior precision (it differs from the one at phi + delta by
             # O(|delta|), far below the statistical error).
             phi = phi + delta
-            eta = eta + d_eta
+            eta = design.linear_predictor(problem.to_full(phi))
             loss = lik.loss(problem.y, eta, problem.w)
             E = loss + problem.penalty(problem.to_full(phi))
             converged = True
             break
-        alpha = 1.0
-        slope = float(g @ delta)
-        while True:
+        slope = -decrement
+        # The full step is tried with the complete pass (it also computes
+        # the new linear predictor): it is accepted in almost every
+        # iteration, and then that pass is the next iteration's.
+        phi_try = phi + delta
+        E_try, g_try, H_try, loss_try, eta_try = problem.derivatives(phi_try)
+        if np.isfinite(E_try) and E_try <= E + armijo * slope:
+            phi, eta, E, g, H, loss = phi_try, eta_try, E_try, g_try, H_try, loss_try
+            continue
+        # Backtrack along eta + alpha d_eta (eta is linear in the
+        # parameters) with loss-only passes that do not touch X.
+        d_eta = eta_try - eta
+        alpha = 0.5
+        while alpha >= 1e-12:
             eta_try = eta + alpha * d_eta
             phi_try = phi + alpha * delta
             loss_try = lik.loss(problem.y, eta_try, problem.w)
@@ -214,16 +229,14 @@ def newton_solve(problem, phi0, *, max_iter=100, tol=1e-8, armijo=1e-4):
             if np.isfinite(E_try) and E_try <= E + armijo * alpha * slope:
                 break
             alpha *= 0.5
-            if alpha < 1e-12:
-                break
         if alpha < 1e-12:
             # No decrease is possible at float precision: the objective is as
             # flat as rounding allows around phi; stop here.
             converged = decrement < 1e-6 * max(1.0, abs(E))
             break
         phi, eta = phi_try, eta_try
+        E, g, H, loss, eta = problem.derivatives(phi, eta)
     else:
-        E, g, H, loss = problem.derivatives(phi, eta)
         L, jitter = _robust_cholesky(H)
     return NewtonResult(
         phi=phi,
