@@ -786,8 +786,9 @@ class BayesLogitAccessor:
             One row per model (index ``model``), the mean over folds of
             ``accuracy``, ``log_loss``, ``brier``, ``ece`` (10 bins, as in
             ``calibration``), their standard deviations across folds
-            (``*_sd``, ddof=1), and ``fit_time`` (mean seconds per fit).
-            Scores are on the held-out fold of each split.
+            (``*_sd``, ddof=1), and ``fit_time`` (mean seconds per fit,
+            after one untimed warm-up fit so that one-off compilation is
+            not counted). Scores are on the held-out fold of each split.
         """
         cv = _check_positive_int("cv", cv, minimum=2)
         feats = self._resolve_features(target, features)
@@ -800,6 +801,8 @@ class BayesLogitAccessor:
                 f"{small}. Use fewer folds."
             )
         n_classes = len(pd.unique(y))
+        if isinstance(models, str) or hasattr(models, "fit"):
+            models = [models]  # one model, not a sequence of characters
         entries = (
             list(models.items())
             if isinstance(models, Mapping)
@@ -833,6 +836,9 @@ class BayesLogitAccessor:
         folds = list(StratifiedKFold(cv, shuffle=True, random_state=random_state).split(X, y))
         rows = {}
         for label, est in runnable:
+            # One untimed fit first: the first fit of a model in a process
+            # pays one-off numba compilation, which is not the model's speed.
+            clone(est).fit(X.iloc[folds[0][0]], y[folds[0][0]])
             per_fold = []
             for train, test in folds:
                 fold_model = clone(est)
@@ -1069,7 +1075,10 @@ class BayesLogitAccessor:
             c = intercept + draws[:, others] @ fixed
             lines = np.column_stack([draws[:, ix], draws[:, iy], c])
         held = [f for f in feats if f not in (x, y)]
-        note = "other features held at their means" if held else None
+        notes = ["other features held at their means"] if held else []
+        if lines is None and band is None:
+            notes.append(f"{_model_label(model)} has no posterior: no draws or band")
+        note = "; ".join(notes) or None
         return boundary_figure(
             x_name=x,
             y_name=y,

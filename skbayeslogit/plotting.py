@@ -91,8 +91,8 @@ def axis_label(name):
     "firmness (N)", ``soluble_solids_brix`` -> "soluble solids (°Brix)",
     ``bruise_share_pct`` -> "bruise share (%)"); a leading ``days_`` marks a
     count of days (``days_since_bloom`` -> "days since bloom (days)").
-    Other underscores become spaces; a name without underscores is returned
-    unchanged.
+    Other underscores become spaces; a single word (no inner underscore)
+    is returned unchanged.
 
     Parameters
     ----------
@@ -104,7 +104,8 @@ def axis_label(name):
     str
     """
     name = str(name)
-    if "_" not in name:
+    if "_" not in name.strip("_"):
+        # One word (perhaps with edge underscores): nothing to read into it.
         return name
     lower = name.lower()
     for suffix, unit in _UNIT_SUFFIXES:
@@ -364,7 +365,7 @@ def boundary_figure(
             )
         )
     ax.contour(grid_x, grid_y, grid_prob, levels=[0.5], colors=["0.0"], linewidths=2.2, zorder=4)
-    handles.append(Line2D([], [], color="0.0", lw=2.2, label="P = 0.5 (posterior predictive)"))
+    handles.append(Line2D([], [], color="0.0", lw=2.2, label="P = 0.5 (predicted probability)"))
     styles = (
         {"marker": "o", "facecolors": "white", "edgecolors": "0.15"},
         {"marker": "^", "facecolors": "0.25", "edgecolors": "0.05"},

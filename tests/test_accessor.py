@@ -493,6 +493,8 @@ def test_compare_accepts_a_mapping_and_uses_one_set_of_folds(df2):
     alone = df2.bayeslogit.compare(TARGET, models=["laplace"], cv=3, random_state=5)
     assert list(table.index) == ["tight", "auto"]
     cols = ["accuracy", "log_loss", "brier", "ece"]
+    single = df2.bayeslogit.compare(TARGET, models="laplace", cv=3, random_state=5)
+    pd.testing.assert_frame_equal(single[cols], alone[cols])
     pd.testing.assert_series_equal(
         table.loc["auto", cols], alone.loc["laplace", cols], check_names=False
     )
