@@ -12,10 +12,76 @@ Parameter layout ("full" vector, length ``q * d + q`` with an intercept,
 intercepts. ``q`` is 1 for a binary model and K for a K-class softmax model.
 """
 
+import os
+import threading
+from concurrent.futures import ThreadPoolExecutor
+
 import numpy as np
 from scipy.linalg.blas import dsyrk
 
 _BLOCK_BYTES = 1 << 20  # ~1 MiB of X per block: fits in L2 on current CPUs
+_TASK_BLOCKS = 8  # blocks per parallel task; results are summed in task order
+_MAX_WORKERS = 4  # the per-block Python work holds the GIL: more do not pay
+
+_pool = None
+_pool_workers = 0
+_pool_lock = threading.Lock()
+_controller = None
+
+
+def _reset_after_fork():
+    # The pool's threads do not exist in a forked child.
+    global _pool, _pool_workers, _pool_lock
+    _pool, _pool_workers, _pool_lock = None, 0, threading.Lock()
+
+
+if hasattr(os, "register_at_fork"):
+    os.register_at_fork(after_in_child=_reset_after_fork)
+
+
+def _blas_controller():
+    global _controller
+    if _controller is None:
+        from threadpoolctl import ThreadpoolController
+
+        _controller = ThreadpoolController()
+    return _controller
+
+
+def _blas_threads():
+    """The BLAS thread count currently configured (1 if unknown)."""
+    info = [m.num_threads for m in _blas_controller().lib_controllers if m.user_api == "blas"]
+    return max(info) if info else 1
+
+
+def _map_tasks(func, tasks):
+    """``[func(*t) for t in tasks]``, spread over threads when it pays.
+
+    Each task runs single-threaded BLAS calls on its own rows; the workers
+    take the place of BLAS's own threads (as many as BLAS was allowed, at
+    most ``_MAX_WORKERS``). Many small multi-threaded BLAS calls synchronise
+    their threads on every call, which costs dearly on a busy machine; whole
+    tasks per thread do not. The results come back in task order, so their
+    sum does not depend on scheduling.
+    """
+    global _pool, _pool_workers
+    threads = _blas_threads()
+    if threads <= 1:
+        return [func(*t) for t in tasks]
+    workers = min(threads, _MAX_WORKERS, len(tasks))
+    # Even a single task runs with one BLAS thread: its calls are too small
+    # for BLAS's threads to pay for their synchronisation.
+    with _blas_controller().limit(limits=1, user_api="blas"):
+        if workers <= 1:
+            return [func(*t) for t in tasks]
+        with _pool_lock:
+            if _pool is None or _pool_workers < workers:
+                if _pool is not None:
+                    _pool.shutdown(wait=False)
+                _pool = ThreadPoolExecutor(max_workers=workers, thread_name_prefix="skbl")
+                _pool_workers = workers
+            pool = _pool
+        return list(pool.map(lambda t: func(*t), tasks))
 
 
 class LinearDesign:
@@ -116,26 +182,48 @@ class LinearDesign:
         A = [s * X_b, s] (the intercept column is s itself) has
         A^T A = [[X_b^T diag(h) X_b, X_b^T h], [h^T X_b, sum h]]: slopes,
         slope-intercept and intercept entries from one BLAS call. A is one
-        block-sized buffer reused for every block, never a copy of X.
+        block-sized buffer per task, never a copy of X. Tasks of
+        ``_TASK_BLOCKS`` consecutive blocks run on worker threads (see
+        ``_map_tasks``) and are summed in row order.
         """
         d, p = self.d, self.p_full
         W, b = self.split(theta)
         coef, b0 = W[0], float(b[0])
-        if eta is None:
+        fill = eta is None
+        if fill:
             eta = np.empty(self.n)
-            fill = True
-        else:
-            fill = False
         rows = min(self.block_rows, self.n)
-        buf = np.empty((rows, p))
-        s = np.empty(rows)
+        span = rows * _TASK_BLOCKS
+        tasks = [
+            (likelihood, y, w, coef, b0, eta, fill, start, min(start + span, self.n), rows)
+            for start in range(0, self.n, span)
+        ]
+        parts = _map_tasks(self._binary_task, tasks)
+        loss = 0.0
+        grad = np.zeros(p)
+        hess = np.zeros((p, p))
+        for lb, gx, gb, hb in parts:
+            loss += lb
+            grad[:d] += gx
+            if self.fit_intercept:
+                grad[d] += gb
+            hess += hb
+        # Only the upper triangle was accumulated.
+        hess = np.triu(hess) + np.triu(hess, 1).T
+        return loss, grad, hess, eta
+
+    def _binary_task(self, likelihood, y, w, coef, b0, eta, fill, first, last, rows):
+        """Loss, slope gradient, intercept gradient and upper Hessian of rows [first, last)."""
+        d, p = self.d, self.p_full
+        buf = np.empty((min(rows, last - first), p))
+        s = np.empty(len(buf))
         gx = np.zeros(d)
         gb = 0.0
         # dsyrk accumulates in place only into a Fortran-contiguous array.
         hess = np.zeros((p, p), order="F")
         loss = 0.0
-        for start in range(0, self.n, rows):
-            stop = min(start + rows, self.n)
+        for start in range(first, last, rows):
+            stop = min(start + rows, last)
             m = stop - start
             Xb = self.X[start:stop]
             eb = eta[start:stop]
@@ -153,13 +241,7 @@ class LinearDesign:
                 gb += float(np.sum(g))
                 A[:, d] = sb
             hess = dsyrk(1.0, A.T, beta=1.0, c=hess, trans=0, lower=0, overwrite_c=1)
-        grad = np.empty(p)
-        grad[:d] = gx
-        if self.fit_intercept:
-            grad[d] = gb
-        # Only the upper triangle was accumulated.
-        hess = np.triu(hess) + np.triu(hess, 1).T
-        return loss, grad, hess, eta
+        return loss, gx, gb, hess
 
     def _accumulate_multi(self, Xb, g, h, grad, hess):
         d, q, nc = self.d, self.q, self.n_coef

@@ -17,6 +17,7 @@ import numpy as np
 from scipy.linalg import solve_triangular
 
 _ROWS_PER_CHUNK = 65536
+_CACHE_BYTES = 256 * 1024  # binary moments: chunk of X R^T kept in L2
 
 
 class GaussianPosterior:
@@ -73,6 +74,8 @@ class GaussianPosterior:
             Variance (binary) or covariance matrix (multiclass) per row.
         """
         q, d, nc = design.q, design.d, design.n_coef
+        if q == 1:
+            return self._latent_moments_binary(design, X)
         mean = design.linear_predictor(self.mean, X)
         n = X.shape[0]
         var = np.empty(n) if q == 1 else np.empty((n, q, q))
@@ -96,4 +99,36 @@ class GaussianPosterior:
                         c = np.einsum("ij,ij->i", U[k], U[l])
                         block[:, k, l] = c
                         block[:, l, k] = c
+        return mean, var
+
+    def _latent_moments_binary(self, design, X):
+        """q == 1: one matrix product per chunk gives both moments.
+
+        With x~ = (x, 1) (intercept) and M = [R_x^T, m_x] (d, p + 1),
+        x^T M + [r_b, m_b] = (R x~, m^T x~): the first p entries square-sum to
+        the variance, the last is the mean. Chunks are small enough that the
+        product stays in cache for the square-sum.
+        """
+        d, n = design.d, X.shape[0]
+        R = self.R
+        p = R.shape[0]
+        M = np.empty((d, p + 1))
+        M[:, :p] = R[:, :d].T
+        M[:, p] = self.mean[:d]
+        shift = np.zeros(p + 1)
+        if design.fit_intercept:
+            shift[:p] = R[:, d]
+            shift[p] = self.mean[d]
+        mean = np.empty(n)
+        var = np.empty(n)
+        rows = max(256, _CACHE_BYTES // (8 * (p + 1)))
+        U = np.empty((min(rows, n), p + 1))
+        for start in range(0, n, rows):
+            stop = min(start + rows, n)
+            Uc = U[: stop - start]
+            np.matmul(X[start:stop], M, out=Uc)
+            Uc += shift
+            mean[start:stop] = Uc[:, p]
+            Ur = Uc[:, :p]
+            np.einsum("ij,ij->i", Ur, Ur, out=var[start:stop])
         return mean, var
