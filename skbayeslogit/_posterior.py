@@ -16,8 +16,11 @@ Pattern Recognition and Machine Learning (2006), Sec. 4.4-4.5.
 import numpy as np
 from scipy.linalg import solve_triangular
 
+from ._design import _map_tasks
+
 _ROWS_PER_CHUNK = 65536
-_CACHE_BYTES = 256 * 1024  # binary moments: chunk of X R^T kept in L2
+_CACHE_BYTES = 512 * 1024  # binary moments: chunk of X R^T kept in L2
+_TASK_CHUNKS = 16  # chunks per worker task
 
 
 class GaussianPosterior:
@@ -107,7 +110,8 @@ class GaussianPosterior:
         With x~ = (x, 1) (intercept) and M = [R_x^T, m_x] (d, p + 1),
         x^T M + [r_b, m_b] = (R x~, m^T x~): the first p entries square-sum to
         the variance, the last is the mean. Chunks are small enough that the
-        product stays in cache for the square-sum.
+        product stays in cache for the square-sum; groups of chunks run on
+        the design's worker threads with single-threaded BLAS.
         """
         d, n = design.d, X.shape[0]
         R = self.R
@@ -122,13 +126,18 @@ class GaussianPosterior:
         mean = np.empty(n)
         var = np.empty(n)
         rows = max(256, _CACHE_BYTES // (8 * (p + 1)))
-        U = np.empty((min(rows, n), p + 1))
-        for start in range(0, n, rows):
-            stop = min(start + rows, n)
-            Uc = U[: stop - start]
-            np.matmul(X[start:stop], M, out=Uc)
-            Uc += shift
-            mean[start:stop] = Uc[:, p]
-            Ur = Uc[:, :p]
-            np.einsum("ij,ij->i", Ur, Ur, out=var[start:stop])
+        span = rows * _TASK_CHUNKS
+
+        def task(first, last):
+            U = np.empty((min(rows, last - first), p + 1))
+            for start in range(first, last, rows):
+                stop = min(start + rows, last)
+                Uc = U[: stop - start]
+                np.matmul(X[start:stop], M, out=Uc)
+                Uc += shift
+                mean[start:stop] = Uc[:, p]
+                Ur = Uc[:, :p]
+                np.einsum("ij,ij->i", Ur, Ur, out=var[start:stop])
+
+        _map_tasks(task, [(a, min(a + span, n)) for a in range(0, n, span)])
         return mean, var
