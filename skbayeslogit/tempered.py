@@ -8,6 +8,7 @@ from sklearn.exceptions import ConvergenceWarning
 
 from ._base import (
     LinearClassifierBase,
+    check_bool,
     check_positive_float,
     check_positive_int,
     check_scale,
@@ -19,7 +20,6 @@ from ._newton import NewtonProblem, solve_map
 from ._tempered import (
     bitempered_loss,
     bitempered_loss_binary,
-    tempered_sigmoid,
     tempered_softmax,
 )
 
@@ -31,6 +31,58 @@ def _check_temperature(name, value, low, high, why):
     if not (np.isfinite(value) and low <= value <= high):
         raise ValueError(f"{name} must be in [{low:g}, {high:g}] ({why}); got {value!r}.")
     return value
+
+
+class _ColumnScaling:
+    """Map between theta and the parameters u of centred, unit-spread columns.
+
+    With column centres m_j and spreads s_j (weighted mean and sd; without
+    an intercept no centring, and s_j the weighted root mean square), the
+    linear predictor sum_j x_j theta_kj + b_k equals
+    sum_j (x_j - m_j) / s_j u_kj + c_k for u_kj = s_j theta_kj and
+    c_k = b_k + sum_j m_j theta_kj. A column with zero spread keeps s_j = 1.
+    """
+
+    def __init__(self, X, w, design):
+        self.q, self.d = design.q, design.d
+        self.fit_intercept = design.fit_intercept
+        if self.fit_intercept:
+            self.centre = np.average(X, axis=0, weights=w)
+            spread = np.sqrt(np.average((X - self.centre) ** 2, axis=0, weights=w))
+        else:
+            self.centre = np.zeros(self.d)
+            spread = np.sqrt(np.average(X**2, axis=0, weights=w))
+        self.spread = np.where(spread > 0, spread, 1.0)
+
+    def _split(self, v):
+        W = v[: self.q * self.d].reshape(self.q, self.d)
+        b = v[self.q * self.d :]
+        return W, b
+
+    def to_theta(self, u):
+        Wu, c = self._split(u)
+        W = Wu / self.spread
+        parts = [W.ravel()]
+        if self.fit_intercept:
+            parts.append(c - W @ self.centre)
+        return np.concatenate(parts)
+
+    def to_u(self, theta):
+        W, b = self._split(theta)
+        parts = [(W * self.spread).ravel()]
+        if self.fit_intercept:
+            parts.append(b + W @ self.centre)
+        return np.concatenate(parts)
+
+    def gradient_to_u(self, grad):
+        """Chain rule: the gradient in theta mapped to the gradient in u."""
+        gW, gb = self._split(grad)
+        if self.fit_intercept:
+            gW = gW - np.outer(gb, self.centre)
+        parts = [(gW / self.spread).ravel()]
+        if self.fit_intercept:
+            parts.append(gb)
+        return np.concatenate(parts)
 
 
 class TemperedLogisticClassifier(LinearClassifierBase):
@@ -70,9 +122,11 @@ class TemperedLogisticClassifier(LinearClassifierBase):
     max_iter : int, default=500
         L-BFGS iterations.
     tol : float, default=1e-6
-        L-BFGS stops when the largest gradient entry is below
-        ``tol * sum(sample_weight)`` (the gradient of a mean loss below
-        tol).
+        L-BFGS stops when the largest entry of the gradient of the mean
+        objective (divided by ``sum(sample_weight)``) is below ``tol``, the
+        gradient taken with respect to the parameters of the features
+        centred and scaled to unit weighted spread, so that the test means
+        the same whatever the units of the features.
     warm_start : bool, default=False
         Start from the previous fit's parameters when refitting with the
         same classes and features.
@@ -145,6 +199,8 @@ class TemperedLogisticClassifier(LinearClassifierBase):
             raise ValueError(f"start must be 'convex' or 'zero'; got {self.start!r}.")
         check_positive_int("max_iter", self.max_iter)
         check_positive_float("tol", self.tol)
+        check_bool("fit_intercept", self.fit_intercept)
+        check_bool("warm_start", self.warm_start)
 
     # -- fitting -------------------------------------------------------------
     def fit(self, X, y, sample_weight=None):
@@ -181,22 +237,35 @@ class TemperedLogisticClassifier(LinearClassifierBase):
             theta0 = np.zeros(design.p_full)
 
         labels = codes.astype(np.float64) if q == 1 else codes
+        # L-BFGS is not invariant to the units of the features or of the
+        # weights: its first step, its curvature pairs and its gradient test
+        # are in parameter units. It therefore works on the parameters u of
+        # centred, unit-spread columns and on the objective rescaled as if
+        # the weights averaged 1 (exactly the sum for unit weights, which
+        # keeps scipy's ftol test, relative only above |f| = 1, where it
+        # was); the minimiser in theta is the same, but features scaled by
+        # 1e-8 or 1e8 (or weights by 1e300) no longer stop it early or
+        # overflow it.
+        scaling = _ColumnScaling(X, w, design)
+        unit = len(w) / float(w.sum())
 
-        def objective(theta):
+        def objective(u):
+            theta = scaling.to_theta(u)
             eta = design.linear_predictor(theta)
             loss, dloss = self._loss(eta, labels, q, K)
             g_eta = dloss * (w if q == 1 else w[:, None])
             value = float(w @ loss) + 0.5 * float(theta @ (prior * theta))
-            return value, self._to_parameters(design, X, g_eta) + prior * theta
+            grad = self._to_parameters(design, X, g_eta) + prior * theta
+            return value * unit, scaling.gradient_to_u(grad) * unit
 
         result = minimize(
             objective,
-            theta0,
+            scaling.to_u(theta0),
             jac=True,
             method="L-BFGS-B",
             options={
                 "maxiter": self.max_iter,
-                "gtol": self.tol * float(w.sum()),
+                "gtol": self.tol * len(w),
                 "ftol": 1e3 * np.finfo(float).eps,
                 "maxcor": 20,
             },
@@ -210,11 +279,11 @@ class TemperedLogisticClassifier(LinearClassifierBase):
                 ConvergenceWarning,
                 stacklevel=2,
             )
-        theta = self._canonical(design, result.x)
+        theta = self._canonical(design, scaling.to_theta(result.x))
         W, b = design.split(theta)
         self.coef_ = np.array(W)
         self.intercept_ = np.array(b) if self.fit_intercept else np.zeros(q)
-        self.loss_ = float(result.fun)
+        self.loss_ = float(result.fun) / unit
         self.n_iter_ = int(result.nit)
         return self
 
@@ -301,8 +370,10 @@ class TemperedLogisticClassifier(LinearClassifierBase):
         scores = self.decision_function(X)
         t2 = float(self.t2)
         if scores.ndim == 1:
-            p1 = tempered_sigmoid(scores, t2)
-            return np.column_stack([1.0 - p1, p1])
+            # Both columns from the kernel, not 1 - p1: where p1 rounds to 1
+            # the small class-0 probability (a polynomial tail for t2 > 1)
+            # would be lost to 0, and predict_log_proba would give -inf.
+            return tempered_softmax(np.column_stack([np.zeros_like(scores), scores]), t2)
         return tempered_softmax(scores, t2)
 
     def predict_log_proba(self, X):
