@@ -408,6 +408,8 @@ class BayesLogitAccessor:
             col = df[target] if not n_missing else df.loc[keep, target]
             y = np.asarray(col.to_numpy(dtype=object) if _is_text(col) else col.to_numpy())
             classes = pd.unique(y)
+            if len(classes) == 0:
+                raise ValueError(f"no rows to fit: the frame has {len(df)} rows and none is used.")
             if len(classes) < 2:
                 raise ValueError(
                     f"the target {target!r} has only one class ({classes[0]!r}) among the "

@@ -72,9 +72,13 @@ def _read_csv(path):
     if not path.is_file():
         raise CommandError(f"file not found: {path}")
     try:
-        return pd.read_csv(path)
+        df = pd.read_csv(path)
     except (pd.errors.ParserError, UnicodeDecodeError, pd.errors.EmptyDataError) as exc:
         raise CommandError(f"cannot read {path} as CSV: {exc}") from exc
+    if len(df) == 0:
+        # Otherwise every column reads as text and the error blames the dtypes.
+        raise CommandError(f"{path} has a header but no data rows")
+    return df
 
 
 def _split(text):

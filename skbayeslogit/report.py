@@ -22,6 +22,7 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
+from sklearn.utils.multiclass import type_of_target
 
 from . import accessor  # noqa: F401  (registers df.bayeslogit)
 from .accessor import MODEL_NAMES, available_models
@@ -147,6 +148,13 @@ def build_report(
     feats = acc._resolve_features(target, features)
     labels = df[target].dropna().unique()
     n_classes = len(labels)
+    if type_of_target(np.asarray(labels)) == "continuous":
+        # Otherwise the first complaint is about too few rows per "class" in
+        # the folds, which hides the real problem.
+        raise ValueError(
+            f"the target {target!r} holds non-integer numbers ({n_classes} distinct values); "
+            "a classifier needs class labels. Bin or threshold it first."
+        )
     notes = []
     chosen = []
     for name in models:
