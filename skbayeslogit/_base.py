@@ -187,13 +187,32 @@ def _check_finite(X):
     )
 
 
-def _check_magnitude(X):
-    """Reject features whose squares overflow or underflow float64."""
+def _check_magnitude(X, per_column=True):
+    """Reject NaN/inf and features whose squares overflow or underflow float64.
+
+    Max and min reductions read X without any temporary of its size; NaN
+    and infinity propagate through them, so the detailed scan of
+    ``_check_finite`` runs only when something is wrong. ``per_column=False``
+    (prediction) checks only the overall range, which is all a prediction
+    needs and a third of the cost; the per-column test for columns too small
+    to square runs at fit time.
+    """
     if X.size == 0:
         return
-    colmax = np.max(np.abs(X), axis=0)
+    axis = 0 if per_column else None
+    colmax, colmin = np.max(X, axis=axis), np.min(X, axis=axis)
+    if not (np.all(np.isfinite(colmax)) and np.all(np.isfinite(colmin))):
+        _check_finite(X)
+    colmax = np.maximum(np.abs(colmax), np.abs(colmin))
+    if not per_column:
+        if colmax <= _MAX_ABS_FEATURE:
+            return
+        colmax = np.max(np.abs(X), axis=0)
     big = colmax > _MAX_ABS_FEATURE
-    tiny = (colmax > 0) & (colmax < 1.0 / _MAX_ABS_FEATURE)
+    if per_column:
+        tiny = (colmax > 0) & (colmax < 1.0 / _MAX_ABS_FEATURE)
+    else:
+        tiny = np.zeros_like(big)
     if np.any(big) or np.any(tiny):
         j = int(np.flatnonzero(big | tiny)[0])
         raise ValueError(
@@ -287,7 +306,6 @@ class LinearClassifierBase(ClassifierMixin, BaseEstimator):
             y_numeric=False,
             ensure_all_finite=False,
         )
-        _check_finite(X)
         _check_magnitude(X)
         check_classification_targets(y)
         self.classes_, y_codes = np.unique(y, return_inverse=True)
@@ -325,8 +343,7 @@ class LinearClassifierBase(ClassifierMixin, BaseEstimator):
         X = validate_data(
             self, X, reset=False, dtype=np.float64, order="C", ensure_all_finite=False
         )
-        _check_finite(X)
-        _check_magnitude(X)
+        _check_magnitude(X, per_column=False)
         return X
 
     # -- naming ------------------------------------------------------------
