@@ -46,6 +46,9 @@ def _parser():
     rep.add_argument("--cv", type=int, default=5, help="cross-validation folds (default 5)")
     rep.add_argument("--seed", type=int, default=0, help="seed for the folds and the demo")
     rep.add_argument("--out", help="directory for CSV tables, figures, models and report.html")
+    rep.add_argument(
+        "--dropna", action="store_true", help="leave out rows with missing values (say how many)"
+    )
     _common(rep)
 
     sco = sub.add_parser(
@@ -130,6 +133,7 @@ def _cmd_report(args, say):
         cv=args.cv,
         random_state=args.seed,
         source=source,
+        dropna=args.dropna,
         progress=say,
     )
     sys.stdout.write(render_text(report))

@@ -62,6 +62,7 @@ class Report:
     notes: list = field(default_factory=list)
     cost: tuple | None = None
     ground_truth: dict | None = None
+    frame: pd.DataFrame | None = None  # the rows used (after --dropna)
 
 
 def _progress(callback, message):
@@ -106,6 +107,7 @@ def build_report(
     n_cases=5,
     top_doubtful=10,
     source="data",
+    dropna=False,
     progress=None,
 ):
     """Run the report's computations on ``df``.
@@ -135,6 +137,9 @@ def build_report(
         How many doubtful labels to list.
     source : str
         How to describe the data in the output.
+    dropna : bool
+        Leave out rows with a missing value in the target or a used
+        feature (the report notes how many) instead of raising.
     progress : callable(str), optional
         Receives progress messages.
 
@@ -144,8 +149,22 @@ def build_report(
     """
     if (cost_fp is None) != (cost_fn is None):
         raise ValueError("give both --cost-fp and --cost-fn, or neither.")
+    feats = df.bayeslogit._resolve_features(target, features)
+    notes = []
+    used = [*feats, target]
+    missing = df[used].isna().sum()
+    missing = missing[missing > 0]
+    if len(missing):
+        rows = int(df[used].isna().any(axis=1).sum())
+        if not dropna:
+            counts = ", ".join(f"{c} ({n})" for c, n in missing.items())
+            raise ValueError(
+                f"{rows} row(s) have missing values, by column: {counts}. Drop or impute "
+                "them, or pass --dropna to leave those rows out."
+            )
+        df = df.dropna(subset=used)
+        notes.append(f"{rows} row(s) with missing values were left out (--dropna).")
     acc = df.bayeslogit
-    feats = acc._resolve_features(target, features)
     labels = df[target].dropna().unique()
     n_classes = len(labels)
     if type_of_target(np.asarray(labels)) == "continuous":
@@ -155,7 +174,6 @@ def build_report(
             f"the target {target!r} holds non-integer numbers ({n_classes} distinct values); "
             "a classifier needs class labels. Bin or threshold it first."
         )
-    notes = []
     chosen = []
     for name in models:
         if name not in MODEL_NAMES:
@@ -236,6 +254,7 @@ def build_report(
         notes=notes,
         cost=None if cost_fp is None else (float(cost_fp), float(cost_fn)),
         ground_truth=ground_truth,
+        frame=df,
     )
 
 
@@ -413,7 +432,8 @@ def write_outputs(report, df, out_dir):
         written["model"].append(path)
 
     images = {}
-    for name, fig in _figures(report, df).items():
+    used = report.frame if report.frame is not None else df
+    for name, fig in _figures(report, used).items():
         data = _png(fig)
         path = out / f"{name}.png"
         path.write_bytes(data)

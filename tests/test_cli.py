@@ -149,3 +149,18 @@ def test_python_dash_m_entry_point():
         timeout=120,
     )
     assert done.returncode == 0 and "demo" in done.stdout
+
+
+def test_missing_values_are_counted_or_dropped(tmp_path, capsys):
+    lots = make_orchard_lots(120, random_state=5)
+    lots.loc[[3, 8, 9], "firmness_n"] = np.nan
+    lots.loc[[8], "starch_index"] = np.nan
+    lots.to_csv(tmp_path / "gappy.csv", index=False)
+    args = ["report", str(tmp_path / "gappy.csv"), "--target", "storage_grade", *FAST]
+    msg = _run_error(args, capsys)
+    assert "3 row(s)" in msg and "firmness_n (3)" in msg and "starch_index (1)" in msg
+    assert "--dropna" in msg
+    assert main([*args, "--dropna", "--out", str(tmp_path / "out")]) == 0
+    out = capsys.readouterr().out
+    assert "3 row(s) with missing values were left out" in out
+    assert (tmp_path / "out" / "report.html").is_file()
