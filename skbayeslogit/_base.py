@@ -33,6 +33,7 @@ from sklearn.utils.validation import _check_sample_weight, check_is_fitted, vali
 from ._design import LinearDesign
 from ._newton import NewtonProblem, solve_map
 from ._posterior import GaussianPosterior
+from ._sources import dask_aware, fit_design, is_out_of_core
 from ._special import expit
 from .exceptions import CollinearityWarning, SeparationWarning
 
@@ -372,6 +373,7 @@ class LinearClassifierBase(ClassifierMixin, BaseEstimator):
         self.intercept_ = np.array(b) if self.fit_intercept else np.zeros(design.q)
 
     # -- prediction --------------------------------------------------------
+    @dask_aware
     def predict(self, X):
         """Most probable class for each row.
 
@@ -388,6 +390,7 @@ class LinearClassifierBase(ClassifierMixin, BaseEstimator):
             return self.classes_[(scores > 0).astype(int)]
         return self.classes_[np.argmax(scores, axis=1)]
 
+    @dask_aware
     def predict_log_proba(self, X):
         """Log of ``predict_proba``, computed without taking log of a rounded 0."""
         scores = self.decision_function(X)
@@ -395,6 +398,7 @@ class LinearClassifierBase(ClassifierMixin, BaseEstimator):
             return np.column_stack([-np.logaddexp(0, scores), -np.logaddexp(0, -scores)])
         return scores - logsumexp(scores, axis=1, keepdims=True)
 
+    @dask_aware
     def predict_proba(self, X):
         """Predictive class probabilities, shape (n_samples, n_classes); rows sum to 1."""
         scores = self.decision_function(X)
@@ -573,12 +577,20 @@ class GaussianPosteriorClassifier(LinearClassifierBase):
         self
         """
         self._check_params()
-        X, y_codes, w = self._validate_fit_data(X, y, sample_weight)
-        n_classes = len(self.classes_)
-        q = 1 if n_classes == 2 else n_classes
+        if is_out_of_core(X, y, sample_weight):
+            # Memory-mapped or dask input: the same solver over a design whose
+            # passes run block by block where the data are (see _sources).
+            design = fit_design(self, X, y, sample_weight, self.fit_intercept)
+            X = y_fit = w = None
+            n_classes = len(self.classes_)
+            q = design.q
+        else:
+            X, y_codes, w = self._validate_fit_data(X, y, sample_weight)
+            n_classes = len(self.classes_)
+            q = 1 if n_classes == 2 else n_classes
+            design = LinearDesign(X, q, self.fit_intercept)
+            y_fit = y_codes.astype(np.float64) if q == 1 else y_codes
         likelihood = self._make_likelihood(n_classes)
-        design = LinearDesign(X, q, self.fit_intercept)
-        y_fit = y_codes.astype(np.float64) if q == 1 else y_codes
         free_map = self._free_map(design)
 
         def fit_at(scale, phi0=None, warn=True):
@@ -588,7 +600,7 @@ class GaussianPosteriorClassifier(LinearClassifierBase):
             return result, self._log_evidence(design, problem, result, scale)
 
         if self._prior_scale == "auto":
-            scale, result, log_ev = self._maximise_evidence(X, w, fit_at)
+            scale, result, log_ev = self._maximise_evidence(X, w, fit_at, design)
         else:
             scale = self._prior_scale
             result, log_ev = fit_at(scale)
@@ -637,7 +649,7 @@ class GaussianPosteriorClassifier(LinearClassifierBase):
             const += -0.5 * design.q * (LOG_2PI + 2.0 * np.log(self._intercept_scale))
         return float(-result.objective + 0.5 * problem.p_free * LOG_2PI - 0.5 * log_det + const)
 
-    def _maximise_evidence(self, X, w, fit_at):
+    def _maximise_evidence(self, X, w, fit_at, design=None):
         """prior_scale maximising the Laplace evidence, on a log scale.
 
         A coarse grid of nine scales, a decade apart around 1 / (median
@@ -651,8 +663,11 @@ class GaussianPosteriorClassifier(LinearClassifierBase):
         When the largest wins, the evidence may keep rising beyond the range
         (typical of separated classes), and a warning says so.
         """
-        mean = np.average(X, axis=0, weights=w)
-        sd = np.sqrt(np.average((X - mean) ** 2, axis=0, weights=w))
+        if getattr(design, "out_of_core", False):
+            sd = design.column_moments()[1]
+        else:
+            mean = np.average(X, axis=0, weights=w)
+            sd = np.sqrt(np.average((X - mean) ** 2, axis=0, weights=w))
         sd = sd[sd > 0]
         ref = 1.0 / float(np.median(sd)) if len(sd) else 1.0
         centre = np.log10(ref)
@@ -698,6 +713,23 @@ class GaussianPosteriorClassifier(LinearClassifierBase):
         self._warn_collinear(result)
         # A recorded label fitted with probability 1 - 1e-12 or closer is what
         # an estimate drifting to infinity produces (separation).
+        if getattr(design, "out_of_core", False):
+            # One more pass counts those rows. The linear-programming
+            # confirmation needs X in memory; for binary models a diverging
+            # Newton iteration stands in for it (well-separated but
+            # identified fits have such rows too), so the warning says "may".
+            margin = _perfect_margin(likelihood, 1e-12) if design.q == 1 else None
+            perfect = design.count_perfect(likelihood, result.theta, margin)
+            if perfect and (design.q > 1 or not result.converged):
+                warnings.warn(
+                    "the maximum-likelihood estimate may not exist (likely separation: "
+                    f"{perfect} row(s) are fitted with probability 1 to within 1e-12). The "
+                    "reported coefficients and intervals may be meaningless; set "
+                    "prior_scale (a float or 'auto').",
+                    SeparationWarning,
+                    stacklevel=3,
+                )
+            return
         if design.q == 1:
             margin = np.where(y > 0.5, result.eta, -result.eta)
             perfect_rows = margin > _perfect_margin(likelihood, 1e-12)
@@ -758,6 +790,7 @@ class GaussianPosteriorClassifier(LinearClassifierBase):
         q, d = self.coef_.shape
         return LinearDesign(np.empty((0, d)), q, self.fit_intercept)
 
+    @dask_aware
     def logit_moments(self, X):
         """Posterior mean and (co)variance of the latent linear predictor.
 
@@ -774,6 +807,7 @@ class GaussianPosteriorClassifier(LinearClassifierBase):
         X = self._validate_predict_data(X)
         return self._posterior.latent_moments(self._design_for_predict(), X)
 
+    @dask_aware
     def decision_function(self, X):
         """Scores that rank exactly as ``predict_proba``.
 
@@ -834,6 +868,7 @@ class GaussianPosteriorClassifier(LinearClassifierBase):
             out[:, :, s] = P / P.sum(axis=1, keepdims=True)
         return out
 
+    @dask_aware
     def predict_interval(self, X, level=0.9):
         """Equal-tailed credible bounds for the class probabilities.
 

@@ -158,16 +158,21 @@ class NewtonProblem:
         """
         rng = np.random.default_rng(seed)
         idx = np.sort(rng.choice(self.design.n, size=n_rows, replace=False))
-        w_sub = self.w[idx]
+        if getattr(self.design, "out_of_core", False):
+            # The same rows as in memory, gathered from the source once.
+            X_sub, y_sub, w_sub = self.design.take(idx)
+            full_total = self.design.total_weight
+        else:
+            X_sub = np.ascontiguousarray(self.design.X[idx])
+            y_sub, w_sub = self.y[idx], self.w[idx]
+            full_total = self.w.sum()
         total = w_sub.sum()
         if total <= 0:
             return None
-        w_sub = w_sub * (self.w.sum() / total)
-        design = LinearDesign(
-            np.ascontiguousarray(self.design.X[idx]), self.design.q, self.design.fit_intercept
-        )
+        w_sub = w_sub * (full_total / total)
+        design = LinearDesign(X_sub, self.design.q, self.design.fit_intercept)
         return NewtonProblem(
-            design, self.likelihood, self.y[idx], w_sub, self.prior_precision, self.free_map
+            design, self.likelihood, y_sub, w_sub, self.prior_precision, self.free_map
         )
 
 
@@ -220,13 +225,19 @@ def newton_solve(problem, phi0, *, max_iter=100, tol=1e-8, armijo=1e-4):
             phi, eta, E, g, H, loss = phi_try, eta_try, E_try, g_try, H_try, loss_try
             continue
         # Backtrack along eta + alpha d_eta (eta is linear in the
-        # parameters) with loss-only passes that do not touch X.
-        d_eta = eta_try - eta
+        # parameters) with loss-only passes that do not touch X. Out-of-core
+        # designs keep no eta (it is as long as the data): their loss-only
+        # passes recompute it block by block.
+        in_memory = eta is not None
+        d_eta = eta_try - eta if in_memory else None
         alpha = 0.5
         while alpha >= 1e-12:
-            eta_try = eta + alpha * d_eta
             phi_try = phi + alpha * delta
-            loss_try = lik.loss(problem.y, eta_try, problem.w)
+            if in_memory:
+                eta_try = eta + alpha * d_eta
+                loss_try = lik.loss(problem.y, eta_try, problem.w)
+            else:
+                loss_try = problem.design.loss(lik, problem.to_full(phi_try))
             E_try = loss_try + problem.penalty(problem.to_full(phi_try))
             if np.isfinite(E_try) and E_try <= E + armijo * alpha * slope:
                 break

@@ -17,6 +17,7 @@ from ._base import (
 from ._design import LinearDesign
 from ._likelihoods import BinaryLogistic, MultinomialLogistic
 from ._newton import NewtonProblem, solve_map
+from ._sources import dask_aware, fit_design, is_out_of_core
 from ._tempered import (
     bitempered_loss,
     bitempered_loss_binary,
@@ -46,7 +47,10 @@ class _ColumnScaling:
     def __init__(self, X, w, design):
         self.q, self.d = design.q, design.d
         self.fit_intercept = design.fit_intercept
-        if self.fit_intercept:
+        if getattr(design, "out_of_core", False):
+            # The same weighted moments, merged from the validation pass.
+            self.centre, spread = design.column_moments(centred=self.fit_intercept)
+        elif self.fit_intercept:
             self.centre = np.average(X, axis=0, weights=w)
             spread = np.sqrt(np.average((X - self.centre) ** 2, axis=0, weights=w))
         else:
@@ -83,6 +87,25 @@ class _ColumnScaling:
         if self.fit_intercept:
             parts.append(gb)
         return np.concatenate(parts)
+
+
+class _TemperedPointwise:
+    """The bi-tempered loss as a pointwise function of eta, for blocked passes.
+
+    ``value_grad(y, eta, w)`` gives the weighted loss sum of a block and its
+    gradient with respect to eta, weights included, by the same kernels and
+    the same arithmetic as the in-memory objective.
+    """
+
+    def __init__(self, t1, t2, label_smoothing, q):
+        self.t1, self.t2, self.ls, self.q = t1, t2, label_smoothing, q
+
+    def value_grad(self, y, eta, w):
+        if self.q == 1:
+            loss, dloss = bitempered_loss_binary(eta, y, self.t1, self.t2, self.ls)
+            return float(w @ loss), dloss * w
+        loss, dloss = bitempered_loss(eta, y, self.t1, self.t2, self.ls)
+        return float(w @ loss), dloss * w[:, None]
 
 
 class TemperedLogisticClassifier(LinearClassifierBase):
@@ -221,10 +244,18 @@ class TemperedLogisticClassifier(LinearClassifierBase):
         """
         self._check_params()
         previous = self._previous_parameters()
-        X, codes, w = self._validate_fit_data(X, y, sample_weight)
+        if is_out_of_core(X, y, sample_weight):
+            # Memory-mapped or dask input: each objective evaluation is one
+            # blocked pass of the same kernels (see _sources).
+            design = fit_design(self, X, y, sample_weight, self.fit_intercept)
+            X = codes = w = None
+        else:
+            X, codes, w = self._validate_fit_data(X, y, sample_weight)
+            design = LinearDesign(
+                X, 1 if len(self.classes_) == 2 else len(self.classes_), self.fit_intercept
+            )
         K = len(self.classes_)
-        q = 1 if K == 2 else K
-        design = LinearDesign(X, q, self.fit_intercept)
+        q = design.q
         prior = np.zeros(design.p_full)
         if self._scale is not None:
             prior[: design.n_coef] = 1.0 / self._scale**2
@@ -236,7 +267,7 @@ class TemperedLogisticClassifier(LinearClassifierBase):
         else:
             theta0 = np.zeros(design.p_full)
 
-        labels = codes.astype(np.float64) if q == 1 else codes
+        labels = None if codes is None else (codes.astype(np.float64) if q == 1 else codes)
         # L-BFGS is not invariant to the units of the features or of the
         # weights: its first step, its curvature pairs and its gradient test
         # are in parameter units. It therefore works on the parameters u of
@@ -247,7 +278,16 @@ class TemperedLogisticClassifier(LinearClassifierBase):
         # 1e-8 or 1e8 (or weights by 1e300) no longer stop it early or
         # overflow it.
         scaling = _ColumnScaling(X, w, design)
-        unit = len(w) / float(w.sum())
+        n_rows = design.n
+        unit = n_rows / float(design.total_weight if w is None else w.sum())
+        pointwise = _TemperedPointwise(self._t1, self._t2, self.label_smoothing, q)
+
+        def objective_out_of_core(u):
+            theta = scaling.to_theta(u)
+            value, grad = design.value_grad(pointwise, theta)
+            value += 0.5 * float(theta @ (prior * theta))
+            grad = grad + prior * theta
+            return value * unit, scaling.gradient_to_u(grad) * unit
 
         def objective(u):
             theta = scaling.to_theta(u)
@@ -259,13 +299,13 @@ class TemperedLogisticClassifier(LinearClassifierBase):
             return value * unit, scaling.gradient_to_u(grad) * unit
 
         result = minimize(
-            objective,
+            objective if w is not None else objective_out_of_core,
             scaling.to_u(theta0),
             jac=True,
             method="L-BFGS-B",
             options={
                 "maxiter": self.max_iter,
-                "gtol": self.tol * len(w),
+                "gtol": self.tol * n_rows,
                 "ftol": 1e3 * np.finfo(float).eps,
                 "maxcor": 20,
             },
@@ -299,7 +339,7 @@ class TemperedLogisticClassifier(LinearClassifierBase):
         """The t1 = t2 = 1 solution: penalised logistic regression by Newton."""
         q = design.q
         lik = BinaryLogistic() if q == 1 else MultinomialLogistic(q)
-        y = codes.astype(np.float64) if q == 1 else codes
+        y = None if codes is None else (codes.astype(np.float64) if q == 1 else codes)
         T = free_parameter_map(design, self._scale is not None, False)
         problem = NewtonProblem(design, lik, y, w, prior, T)
         import warnings
@@ -313,7 +353,11 @@ class TemperedLogisticClassifier(LinearClassifierBase):
             return np.zeros(design.p_full)
         # Without a penalty and separated classes the logistic start runs
         # off to large norms; the bounded loss has no use for that.
-        limit = 50.0 / max(float(np.max(np.abs(design.X))), 1e-12)
+        if getattr(design, "out_of_core", False):
+            x_max = float(np.max(design.stats["colmax"]))
+        else:
+            x_max = float(np.max(np.abs(design.X)))
+        limit = 50.0 / max(x_max, 1e-12)
         if np.max(np.abs(theta[: design.n_coef])) > limit:
             theta = theta * (limit / np.max(np.abs(theta[: design.n_coef])))
         return theta
@@ -349,6 +393,7 @@ class TemperedLogisticClassifier(LinearClassifierBase):
         return theta
 
     # -- prediction ----------------------------------------------------------
+    @dask_aware
     def decision_function(self, X):
         """Activations: shape (n_samples,) for binary (class 1 against an
         activation of 0 for class 0), (n_samples, K) for multiclass. They
@@ -358,6 +403,7 @@ class TemperedLogisticClassifier(LinearClassifierBase):
             return X @ self.coef_[0] + self.intercept_[0]
         return X @ self.coef_.T + self.intercept_
 
+    @dask_aware
     def predict(self, X):
         """Class with the largest activation (= the largest probability)."""
         scores = self.decision_function(X)
@@ -365,6 +411,7 @@ class TemperedLogisticClassifier(LinearClassifierBase):
             return self.classes_[(scores > 0).astype(int)]
         return self.classes_[np.argmax(scores, axis=1)]
 
+    @dask_aware
     def predict_proba(self, X):
         """Tempered softmax probabilities at t2, shape (n_samples, K); rows sum to 1."""
         scores = self.decision_function(X)
@@ -376,6 +423,7 @@ class TemperedLogisticClassifier(LinearClassifierBase):
             return tempered_softmax(np.column_stack([np.zeros_like(scores), scores]), t2)
         return tempered_softmax(scores, t2)
 
+    @dask_aware
     def predict_log_proba(self, X):
         """Log of ``predict_proba`` (probabilities are > 0 for t2 >= 1)."""
         with np.errstate(divide="ignore"):
