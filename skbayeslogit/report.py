@@ -159,8 +159,8 @@ def build_report(
         if not dropna:
             counts = ", ".join(f"{c} ({n})" for c, n in missing.items())
             raise ValueError(
-                f"{rows} row(s) have missing values, by column: {counts}. Drop or impute "
-                "them, or pass --dropna to leave those rows out."
+                f"{rows} of {len(df)} rows have missing values, by column: {counts}. Drop or "
+                "impute them, or pass --dropna to leave those rows out."
             )
         df = df.dropna(subset=used)
         notes.append(f"{rows} row(s) with missing values were left out (--dropna).")

@@ -158,7 +158,7 @@ def test_missing_values_are_counted_or_dropped(tmp_path, capsys):
     lots.to_csv(tmp_path / "gappy.csv", index=False)
     args = ["report", str(tmp_path / "gappy.csv"), "--target", "storage_grade", *FAST]
     msg = _run_error(args, capsys)
-    assert "3 row(s)" in msg and "firmness_n (3)" in msg and "starch_index (1)" in msg
+    assert "3 of 120 rows" in msg and "firmness_n (3)" in msg and "starch_index (1)" in msg
     assert "--dropna" in msg
     assert main([*args, "--dropna", "--out", str(tmp_path / "out")]) == 0
     out = capsys.readouterr().out
