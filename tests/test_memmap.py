@@ -3,8 +3,12 @@
 import numpy as np
 import pytest
 
-from skbayeslogit import LaplaceLogisticClassifier, ProbitClassifier, TemperedLogisticClassifier
-from skbayeslogit import _newton
+from skbayeslogit import (
+    LaplaceLogisticClassifier,
+    ProbitClassifier,
+    TemperedLogisticClassifier,
+    _newton,
+)
 from skbayeslogit._sources import set_block_rows
 
 RTOL = 1e-8
