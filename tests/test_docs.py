@@ -10,12 +10,16 @@ matplotlib backend:
   (other bash blocks, such as pip commands, are not run);
 - a ```text block preceded by the line ``<!-- output -->`` must equal, up to
   trailing whitespace, what the block just before it printed;
-- the line ``<!-- no-test -->`` just before a fence skips that block.
+- the line ``<!-- no-test -->`` just before a fence skips that block;
+- the line ``<!-- requires: MODULE -->`` runs the block only when MODULE
+  (an optional extra, such as dask) is importable, else skips it and the
+  output block after it.
 
 The index page must link every page, and relative links must resolve.
 """
 
 import contextlib
+import importlib.util
 import io
 import re
 import shlex
@@ -46,6 +50,8 @@ def _blocks(path):
             j += 1
         prev = next((lines[k].strip() for k in range(i - 1, -1, -1) if lines[k].strip()), "")
         marker = prev if prev in ("<!-- no-test -->", "<!-- output -->") else None
+        if prev.startswith("<!-- requires: ") and prev.endswith(" -->"):
+            marker = prev
         out.append((lang, "\n".join(lines[start:j]) + "\n", marker, start))
         i = j + 1
     return out
@@ -77,10 +83,21 @@ def test_examples_run(page, tmp_path, monkeypatch):
         pass
     namespace = {"__name__": f"docs_{page.stem}"}
     last_output = None
+    skip_output = False
     for lang, code, marker, line in _blocks(page):
         where = f"{page.name}, block at line {line}"
         if marker == "<!-- no-test -->":
             continue
+        if marker is not None and marker.startswith("<!-- requires: "):
+            # An optional extra: without it the block and its output are skipped.
+            module = marker[len("<!-- requires: ") : -len(" -->")]
+            if importlib.util.find_spec(module) is None:
+                skip_output = True
+                continue
+        if lang == "text" and marker == "<!-- output -->" and skip_output:
+            skip_output = False
+            continue
+        skip_output = False
         if lang == "python":
             buffer = io.StringIO()
             with contextlib.redirect_stdout(buffer):
