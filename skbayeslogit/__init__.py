@@ -2,6 +2,7 @@
 robustness for linear classifiers, inside scikit-learn and pandas."""
 
 from . import accessor  # noqa: F401  (registers the df.bayeslogit accessor)
+from ._sources import set_block_rows
 from ._tempered import bitempered_loss, exp_t, log_t, tempered_softmax
 from .exceptions import CollinearityWarning, SeparationWarning
 from .laplace import LaplaceLogisticClassifier
@@ -19,5 +20,6 @@ __all__ = [
     "bitempered_loss",
     "exp_t",
     "log_t",
+    "set_block_rows",
     "tempered_softmax",
 ]
