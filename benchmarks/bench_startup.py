@@ -11,7 +11,10 @@ repeats):
   child imports the package (not timed) and times its first
   ``LaplaceLogisticClassifier(prior_scale=1.0).fit`` and first
   ``TemperedLogisticClassifier().fit`` on 1,000 rows, d = 10 (binary), then a
-  second fit of each (the steady-state cost of those rows).
+  second fit of each (the steady-state cost of those rows). The fits run in
+  that order in one child, so the tempered figures come after numba's
+  once-per-process initialisation (about 0.3-0.5 s, paid by the first jitted
+  call, cached or not), which the Laplace figures include.
 - first fit, warm cache: the same child again with the same cache
   directory, now holding the compiled kernels (loaded, not compiled).
   Reference: scikit-learn's first ``LogisticRegression().fit`` in a fresh
