@@ -69,11 +69,13 @@ def _map_tasks(func, tasks):
     if threads <= 1:
         return [func(*t) for t in tasks]
     workers = min(threads, _MAX_WORKERS, len(tasks))
-    # Even a single task runs with one BLAS thread: its calls are too small
-    # for BLAS's threads to pay for their synchronisation.
+    if workers <= 1:
+        # One task: no thread-count change. Lowering and restoring the BLAS
+        # thread count around a small pass made the next small LAPACK call
+        # (the Cholesky of the Newton step) wait ~10 ms for OpenBLAS's
+        # threads on a busy machine: more than the whole of a small fit.
+        return [func(*t) for t in tasks]
     with _blas_controller().limit(limits=1, user_api="blas"):
-        if workers <= 1:
-            return [func(*t) for t in tasks]
         with _pool_lock:
             if _pool is None or _pool_workers < workers:
                 if _pool is not None:
