@@ -161,15 +161,17 @@ def run(quick: bool = False) -> list[dict]:
             ours = _median_time(lambda a=a, t=t: tempered_normaliser(a, t), repeats)
             ref = _median_time(lambda a=a, t=t: normaliser_numpy(a, t), max(1, repeats // 2))
             diff = float(np.max(np.abs(tempered_normaliser(a, t) - normaliser_numpy(a, t))))
-            rows.append({
-                "workload": f"normaliser n={n} K={k} t={t}",
-                "ours_s": ours,
-                "reference_s": ref,
-                "ratio": ref / ours,
-                "rows_per_s_ours": n / ours,
-                "rows_per_s_reference": n / ref,
-                "max_abs_diff": diff,
-            })
+            rows.append(
+                {
+                    "workload": f"normaliser n={n} K={k} t={t}",
+                    "ours_s": ours,
+                    "reference_s": ref,
+                    "ratio": ref / ours,
+                    "rows_per_s_ours": n / ours,
+                    "rows_per_s_reference": n / ref,
+                    "max_abs_diff": diff,
+                }
+            )
     return rows
 
 
@@ -177,11 +179,14 @@ def main(argv=None):
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--quick", action="store_true", help="fewer rows and repeats")
     args = parser.parse_args(argv)
-    print(f"{'workload':<36} {'ours rows/s':>12} {'numpy rows/s':>13} "
-          f"{'ratio':>7} {'max|diff|':>10}")
+    print(
+        f"{'workload':<36} {'ours rows/s':>12} {'numpy rows/s':>13} {'ratio':>7} {'max|diff|':>10}"
+    )
     for r in run(args.quick):
-        print(f"{r['workload']:<36} {r['rows_per_s_ours']:>12.3g} "
-              f"{r['rows_per_s_reference']:>13.3g} {r['ratio']:>7.1f} {r['max_abs_diff']:>10.2g}")
+        print(
+            f"{r['workload']:<36} {r['rows_per_s_ours']:>12.3g} "
+            f"{r['rows_per_s_reference']:>13.3g} {r['ratio']:>7.1f} {r['max_abs_diff']:>10.2g}"
+        )
 
 
 if __name__ == "__main__":

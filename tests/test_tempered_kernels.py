@@ -139,8 +139,9 @@ def test_probabilities_sum_to_one(t):
             a = rng.normal(scale=scale, size=(2, k))
             p = tempered_softmax(a, t)
             assert np.all(p >= 0) and np.all(p <= 1)
-            np.testing.assert_allclose(p.sum(axis=1), 1.0, rtol=1e-12, atol=0,
-                                       err_msg=f"K={k} scale={scale}")
+            np.testing.assert_allclose(
+                p.sum(axis=1), 1.0, rtol=1e-12, atol=0, err_msg=f"K={k} scale={scale}"
+            )
 
 
 def test_probabilities_match_exp_t_at_normaliser():
@@ -150,8 +151,9 @@ def test_probabilities_match_exp_t_at_normaliser():
     a = rng.normal(scale=3.0, size=(5, 40))
     for t in (0.0, 0.5, 0.8, 1.2, 1.3, 2.0, 3.7):
         lam = tempered_normaliser(a, t)
-        np.testing.assert_allclose(tempered_softmax(a, t), exp_t(a - lam[:, None], t),
-                                   rtol=1e-13, atol=1e-300)
+        np.testing.assert_allclose(
+            tempered_softmax(a, t), exp_t(a - lam[:, None], t), rtol=1e-13, atol=1e-300
+        )
 
 
 def test_shift_invariance_and_one_row_input():
@@ -172,17 +174,27 @@ def test_softmax_at_t1_and_sigmoid():
     a = rng.normal(scale=4.0, size=(6, 5))
     np.testing.assert_allclose(tempered_softmax(a, 1.0), softmax(a, axis=1), rtol=1e-14)
     b = rng.normal(scale=4.0, size=50)
-    np.testing.assert_allclose(tempered_sigmoid(b, 1.0), softmax(np.c_[np.zeros(50), b], 1)[:, 1],
-                               rtol=1e-14)
-    np.testing.assert_allclose(tempered_sigmoid(b, 1.7),
-                               tempered_softmax(np.c_[np.zeros(50), b], 1.7)[:, 1], rtol=0)
+    np.testing.assert_allclose(
+        tempered_sigmoid(b, 1.0), softmax(np.c_[np.zeros(50), b], 1)[:, 1], rtol=1e-14
+    )
+    np.testing.assert_allclose(
+        tempered_sigmoid(b, 1.7), tempered_softmax(np.c_[np.zeros(50), b], 1.7)[:, 1], rtol=0
+    )
 
 
 # ------------------------------------------------------------------------ loss
 
 
-LOSS_TEMPERATURES = [(1.0, 1.0), (0.8, 1.2), (0.2, 4.0), (0.5, 0.5), (0.0, 1.0), (1.0, 2.0),
-                     (0.6, 1.0), (0.3, 0.7)]
+LOSS_TEMPERATURES = [
+    (1.0, 1.0),
+    (0.8, 1.2),
+    (0.2, 4.0),
+    (0.5, 0.5),
+    (0.0, 1.0),
+    (1.0, 2.0),
+    (0.6, 1.0),
+    (0.3, 0.7),
+]
 
 
 def _fd_gradient(a, labels, t1, t2, ls):
@@ -251,8 +263,12 @@ def test_t1_t2_one_is_cross_entropy():
     loss, grad = bitempered_loss(a, idx, 1.0, 1.0)
     # scipy's log_softmax computes a - logsumexp(a): absolute error of a few
     # ulps of max|a|, hence the atol.
-    np.testing.assert_allclose(loss, -log_softmax(a, axis=1)[np.arange(50), idx], rtol=1e-12,
-                               atol=8 * np.finfo(float).eps * np.abs(a).max())
+    np.testing.assert_allclose(
+        loss,
+        -log_softmax(a, axis=1)[np.arange(50), idx],
+        rtol=1e-12,
+        atol=8 * np.finfo(float).eps * np.abs(a).max(),
+    )
     # Where the true class has the largest activation, the closed form
     # -log p_c = log1p(sum_{i != c} exp(a_i - a_c)) is accurate to relative eps.
     top = np.argmax(a, axis=1) == idx
@@ -261,8 +277,9 @@ def test_t1_t2_one_is_cross_entropy():
     gaps[np.arange(top.sum()), idx[top]] = -np.inf
     np.testing.assert_allclose(loss[top], np.log1p(np.exp(gaps).sum(axis=1)), rtol=1e-13)
     # A few ulps of 1 (both sides round probabilities near 1).
-    np.testing.assert_allclose(grad, softmax(a, axis=1) - np.eye(6)[idx], rtol=0,
-                               atol=4 * np.finfo(float).eps)
+    np.testing.assert_allclose(
+        grad, softmax(a, axis=1) - np.eye(6)[idx], rtol=0, atol=4 * np.finfo(float).eps
+    )
     # With smoothing: cross-entropy against the smoothed labels minus their entropy.
     ls = 0.2
     y = (1 - ls) * np.eye(6)[idx] + ls / 6
@@ -314,8 +331,9 @@ def test_extreme_activations_are_finite_without_warnings(t2):
             for labels in (np.array([0, 1, 2]), np.full((3, 3), 1 / 3)):
                 loss, grad = bitempered_loss(a, labels, t1, t2, 0.1)
                 assert np.all(np.isfinite(loss)) and np.all(np.isfinite(grad))
-            lb, gb = bitempered_loss_binary(np.array([1e8, -1e8, 0.0]),
-                                            np.array([0.0, 1.0, 1.0]), t1, t2)
+            lb, gb = bitempered_loss_binary(
+                np.array([1e8, -1e8, 0.0]), np.array([0.0, 1.0, 1.0]), t1, t2
+            )
             assert np.all(np.isfinite(lb)) and np.all(np.isfinite(gb))
         p = tempered_softmax(a, t2)
         assert not np.isnan(p).any()
@@ -428,8 +446,13 @@ def test_concurrent_calls_match_serial():
 
 def _run_python(code, env_extra, timeout=120):
     env = dict(os.environ, **env_extra)
-    return subprocess.run([sys.executable, "-c", textwrap.dedent(code)], env=env,
-                          capture_output=True, text=True, timeout=timeout)
+    return subprocess.run(
+        [sys.executable, "-c", textwrap.dedent(code)],
+        env=env,
+        capture_output=True,
+        text=True,
+        timeout=timeout,
+    )
 
 
 def test_workqueue_layer_concurrent_threads_and_fork_do_not_abort():
@@ -481,8 +504,13 @@ def test_import_without_writable_cache_and_lazy_compilation():
         assert len(tk._normalise_serial.signatures) == 1
         print("ok")
     """
-    res = _run_python(code, {"NUMBA_CACHE_DIR": "/proc/skbayeslogit-no-cache",
-                             "NUMBA_CACHE_LOCATOR_CLASSES": "UserProvidedCacheLocator"})
+    res = _run_python(
+        code,
+        {
+            "NUMBA_CACHE_DIR": "/proc/skbayeslogit-no-cache",
+            "NUMBA_CACHE_LOCATOR_CLASSES": "UserProvidedCacheLocator",
+        },
+    )
     assert res.returncode == 0, res.stderr[-2000:]
     assert res.stdout.strip() == "ok"
 
@@ -497,7 +525,8 @@ def test_few_compiled_signatures():
 
 
 _rows = st.integers(min_value=2, max_value=60).flatmap(
-    lambda k: st.lists(st.floats(-50, 50, allow_nan=False), min_size=k, max_size=k))
+    lambda k: st.lists(st.floats(-50, 50, allow_nan=False), min_size=k, max_size=k)
+)
 _temps = st.sampled_from([0.0, 0.3, 0.8, 1.0, 1.1, 1.5, 2.5, 5.0])
 
 
@@ -511,9 +540,13 @@ def test_property_sum_and_shift(row, t, shift):
 
 
 @settings(max_examples=50, derandomize=True, deadline=None)
-@given(row=_rows, t1=st.sampled_from([0.0, 0.5, 0.9, 1.0]),
-       t2=st.sampled_from([1.0, 1.3, 2.0, 4.0]), ls=st.sampled_from([0.0, 0.1]),
-       c=st.integers(0, 1))
+@given(
+    row=_rows,
+    t1=st.sampled_from([0.0, 0.5, 0.9, 1.0]),
+    t2=st.sampled_from([1.0, 1.3, 2.0, 4.0]),
+    ls=st.sampled_from([0.0, 0.1]),
+    c=st.integers(0, 1),
+)
 def test_property_gradient_matches_central_differences(row, t1, t2, ls, c):
     a = np.array([row]) / 10.0
     _, grad = bitempered_loss(a, [c], t1, t2, ls)
