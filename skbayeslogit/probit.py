@@ -32,10 +32,9 @@ class ProbitClassifier(GaussianPosteriorClassifier):
         is then the inverse observed information (the negative Hessian of
         the log-likelihood at the estimate). For probit the observed and the
         expected (Fisher) information differ away from the canonical link,
-        so these standard errors agree with software that uses the observed
-        Hessian (statsmodels ``Probit``, Newton-type GLM fits) and differ
-        slightly from IRLS/Fisher-scoring output (statsmodels ``GLM``
-        default).
+        so these standard errors agree with fits that use the observed
+        Hessian (Newton's method) and differ slightly from those of IRLS /
+        Fisher scoring, which use the expected information.
     intercept_prior_scale : float > 0 or None, default=None
         Prior sd of the intercept; None is a flat prior.
     fit_intercept : bool, default=True
