@@ -1,6 +1,7 @@
 """Label-noise-robust linear classifier: the bi-tempered logistic loss."""
 
 import numbers
+import warnings
 
 import numpy as np
 from scipy.optimize import minimize
@@ -315,8 +316,6 @@ class TemperedLogisticClassifier(LinearClassifierBase):
             },
         )
         if not result.success and result.nit >= self.max_iter:
-            import warnings
-
             warnings.warn(
                 f"L-BFGS did not converge in {self.max_iter} iterations ({result.message}); "
                 "increase max_iter, standardise the features or strengthen prior_scale.",
@@ -346,8 +345,6 @@ class TemperedLogisticClassifier(LinearClassifierBase):
         y = None if codes is None else (codes.astype(np.float64) if q == 1 else codes)
         T = free_parameter_map(design, self._scale is not None, False)
         problem = NewtonProblem(design, lik, y, w, prior, T)
-        import warnings
-
         out_of_core = getattr(design, "out_of_core", False)
         if not out_of_core and design.n > _CONVEX_START_ROWS:
             # The start only has to land in the right basin: the logistic
