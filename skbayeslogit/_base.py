@@ -1,4 +1,6 @@
-"""Shared classifier base: input checks, label encoding, parameter layout.
+"""Shared classifier base: label encoding, parameter layout, the posterior API.
+
+The checks of parameters and inputs live in ``_validation.py``.
 
 Two bases live here:
 
@@ -17,7 +19,6 @@ Two bases live here:
     and the binary predictive through two hooks.
 """
 
-import numbers
 import warnings
 
 import numpy as np
@@ -35,239 +36,22 @@ from ._newton import NewtonProblem, solve_map
 from ._posterior import GaussianPosterior
 from ._sources import dask_aware, fit_design, is_out_of_core
 from ._special import expit
+from ._validation import (
+    _as_labels,
+    _check_magnitude,
+    _plain,
+    _reject_non_numeric_frame,
+    _reject_unusable_array,
+    check_bool,
+    check_level,
+    check_options,
+    check_positive_float,
+    check_positive_int,
+    check_scale,
+)
 from .exceptions import CollinearityWarning, SeparationWarning
 
 LOG_2PI = float(np.log(2.0 * np.pi))
-
-
-# -- parameter checks ---------------------------------------------------------
-def check_scale(name, value, allow_auto=False):
-    """Validate a prior scale: positive finite float, None, or "auto"."""
-    if value is None:
-        return None
-    if isinstance(value, str):
-        if allow_auto and value == "auto":
-            return "auto"
-        options = 'a positive float, None or "auto"' if allow_auto else "a positive float or None"
-        raise ValueError(f"{name} must be {options}; got {value!r}.")
-    if isinstance(value, bool) or not isinstance(value, numbers.Real):
-        raise TypeError(f"{name} must be a positive float; got {type(value).__name__}.")
-    value = float(value)
-    if not (np.isfinite(value) and value > 0):
-        raise ValueError(f"{name} must be a positive finite float; got {value!r}.")
-    return value
-
-
-def check_positive_int(name, value):
-    if isinstance(value, bool) or not isinstance(value, numbers.Integral) or value < 1:
-        raise ValueError(f"{name} must be a positive integer; got {value!r}.")
-    return int(value)
-
-
-def check_positive_float(name, value):
-    if isinstance(value, bool) or not isinstance(value, numbers.Real) or not value > 0:
-        raise ValueError(f"{name} must be a positive float; got {value!r}.")
-    return float(value)
-
-
-def check_bool(name, value):
-    # A string such as "no" is truthy: accepting it would silently fit the
-    # opposite of what was meant.
-    if not isinstance(value, bool | np.bool_):
-        raise ValueError(f"{name} must be True or False; got {value!r}.")
-    return bool(value)
-
-
-def check_level(level):
-    if isinstance(level, bool) or not isinstance(level, numbers.Real) or not 0 < level < 1:
-        raise ValueError(f"level must be a probability strictly between 0 and 1; got {level!r}.")
-    return float(level)
-
-
-def check_options(name, value, options):
-    if value not in options:
-        raise ValueError(f"{name} must be one of {', '.join(map(repr, options))}; got {value!r}.")
-    return value
-
-
-def _plain(value):
-    """A numpy scalar as the Python value it holds, for readable messages."""
-    return value.item() if isinstance(value, np.generic) else value
-
-
-def _reject_non_numeric_frame(X):
-    """Name the non-numeric columns of a DataFrame before numpy conversion."""
-    if isinstance(X, pd.DataFrame):
-        bad = [
-            str(c)
-            for c, dt in X.dtypes.items()
-            if not (pd.api.types.is_numeric_dtype(dt) or pd.api.types.is_bool_dtype(dt))
-            or pd.api.types.is_complex_dtype(dt)
-        ]
-        if bad:
-            raise ValueError(
-                f"non-numeric feature column(s): {', '.join(bad)}. Encode them first "
-                "(for example with sklearn.preprocessing.OneHotEncoder in a "
-                "ColumnTransformer) or leave them out of X."
-            )
-
-
-#: Largest feature magnitude accepted. The Hessian (sums of w x_j x_k) and
-#: the latent variance (x^T Sigma x) square the features: beyond
-#: sqrt(float64 max) ~ 1.3e154 a single square overflows, and 1e4 below that
-#: leaves room for sums over 1e8 rows. Nonzero columns below the reciprocal
-#: underflow the same products to 0.
-_MAX_ABS_FEATURE = float(np.sqrt(np.finfo(np.float64).max)) / 1e4
-
-
-def _reject_unusable_array(X, name="X"):
-    """Name complex numbers and text in X before numpy's conversion does.
-
-    scikit-learn's messages for these dump the whole array over many lines
-    (complex) or name a bare value (strings); ours say what is wrong and what
-    to do, in one line. Object arrays are scanned element by element, which
-    is slow only for object input, which is slow to convert anyway.
-    """
-    if isinstance(X, pd.DataFrame) or hasattr(X, "tocsr") or hasattr(X, "__dataframe__"):
-        return
-    arr = np.asarray(X) if not isinstance(X, np.ndarray) else X
-    if arr.ndim == 1 and name == "X":
-        # scikit-learn's message (same wording) prints every value.
-        raise ValueError(
-            f"Expected 2D array, got 1D array instead (shape {arr.shape}). Reshape your data "
-            "either using X.reshape(-1, 1) if it has a single feature or X.reshape(1, -1) "
-            "if it is a single sample."
-        )
-    kind = arr.dtype.kind
-    if kind == "c":
-        raise ValueError(
-            f"Complex data not supported: {name} contains complex numbers (dtype "
-            f"{arr.dtype}); features must be real. "
-            f"Pass {name}.real if the imaginary parts are all zero."
-        )
-    if kind in "USV":
-        raise ValueError(
-            f"{name} holds strings (dtype {arr.dtype}); features must be numbers. Encode "
-            "text columns (for example with sklearn.preprocessing.OneHotEncoder), or "
-            f"convert numeric text with {name}.astype(float)."
-        )
-    if kind == "O":
-        for v in arr.flat:
-            if isinstance(v, str):
-                raise ValueError(
-                    f"{name} (object dtype) holds strings such as {v!r}; features must be "
-                    "numbers. Encode text columns (for example with "
-                    "sklearn.preprocessing.OneHotEncoder)."
-                )
-            if isinstance(v, complex | np.complexfloating):
-                raise ValueError(
-                    f"{name} (object dtype) holds complex numbers such as {v!r}; features "
-                    "must be real."
-                )
-
-
-def _check_finite(X):
-    """Count and locate NaN and infinite features, in one line.
-
-    scikit-learn's own check says the same over four lines; the row count
-    and first position are what a user needs to find the bad cells.
-    """
-    finite = np.isfinite(X)
-    if finite.all():
-        return
-    i, j = (int(v) for v in np.argwhere(~finite)[0])
-    parts = []
-    for what, mask in (("NaN", np.isnan(X)), ("infinity", np.isinf(X))):
-        rows = int(mask.any(axis=1).sum())
-        if rows:
-            parts.append(f"{what} in {rows} row(s)")
-    raise ValueError(
-        f"Input X contains {' and '.join(parts)} (first at row {i}, column {j}). Drop or "
-        "impute missing values (for example with sklearn.impute.SimpleImputer in a "
-        "Pipeline) and replace infinite ones."
-    )
-
-
-def _check_magnitude(X, per_column=True):
-    """Reject NaN/inf and features whose squares overflow or underflow float64.
-
-    Max and min reductions read X without any temporary of its size; NaN
-    and infinity propagate through them, so the detailed scan of
-    ``_check_finite`` runs only when something is wrong. ``per_column=False``
-    (prediction) checks only the overall range, which is all a prediction
-    needs and a third of the cost; the per-column test for columns too small
-    to square runs at fit time.
-    """
-    if X.size == 0:
-        return
-    axis = 0 if per_column else None
-    colmax, colmin = np.max(X, axis=axis), np.min(X, axis=axis)
-    if not (np.all(np.isfinite(colmax)) and np.all(np.isfinite(colmin))):
-        _check_finite(X)
-    colmax = np.maximum(np.abs(colmax), np.abs(colmin))
-    if not per_column:
-        if colmax <= _MAX_ABS_FEATURE:
-            return
-        colmax = np.max(np.abs(X), axis=0)
-    big = colmax > _MAX_ABS_FEATURE
-    if per_column:
-        tiny = (colmax > 0) & (colmax < 1.0 / _MAX_ABS_FEATURE)
-    else:
-        tiny = np.zeros_like(big)
-    if np.any(big) or np.any(tiny):
-        j = int(np.flatnonzero(big | tiny)[0])
-        raise ValueError(
-            f"feature column {j} has values of magnitude {colmax[j]:.3g}, outside "
-            f"[{1 / _MAX_ABS_FEATURE:.0e}, {_MAX_ABS_FEATURE:.0e}]: products of such "
-            "features overflow or underflow float64. Rescale the features (for example "
-            "with sklearn.preprocessing.StandardScaler)."
-        )
-
-
-def _as_labels(y):
-    """y as an array whose values keep their type, or a clear error.
-
-    pandas nullable columns (boolean, Int64, Float64) would otherwise be
-    turned into float64 by scikit-learn, so that booleans come back from
-    ``predict`` as 0.0/1.0; missing labels (NaN, None, pd.NA) and mixed
-    types get a message that says so instead of "Unknown label type".
-    """
-    if y is None:
-        return y  # scikit-learn's "requires y to be passed" follows
-    if isinstance(y, pd.Series | pd.Index | pd.api.extensions.ExtensionArray):
-        n_missing = int(np.sum(pd.isna(y)))
-        if n_missing:
-            raise ValueError(
-                f"y has {n_missing} missing label(s) (NaN, None or pd.NA); drop those rows "
-                "or give them a label."
-            )
-        dtype = y.dtype
-        numpy_dtype = getattr(dtype, "numpy_dtype", None)
-        if isinstance(dtype, pd.api.extensions.ExtensionDtype) and numpy_dtype is not None:
-            return y.to_numpy(dtype=numpy_dtype)
-        return y
-    arr = np.asarray(y)
-    if arr.dtype.kind == "c":
-        raise ValueError(
-            f"Complex data not supported: y contains complex numbers (dtype {arr.dtype}); "
-            "labels must be real."
-        )
-    if arr.dtype.kind in "fO":
-        n_missing = int(np.sum(pd.isna(arr)))
-        if n_missing:
-            raise ValueError(
-                f"y has {n_missing} missing label(s) (NaN, None or pd.NA); drop those rows "
-                "or give them a label."
-            )
-    if arr.dtype.kind == "O":
-        has_str = any(isinstance(v, str) for v in arr.flat)
-        if has_str and not all(isinstance(v, str) for v in arr.flat):
-            kinds = sorted({type(v).__name__ for v in arr.flat})
-            raise ValueError(
-                f"y mixes label types ({', '.join(kinds)}); use one type for every label, "
-                "for example all strings."
-            )
-    return y
 
 
 class LinearClassifierBase(ClassifierMixin, BaseEstimator):

@@ -32,6 +32,7 @@ dask is optional: :func:`require_dask` names the extra to install.
 import numpy as np
 
 from ._design import LinearDesign
+from ._validation import _MAX_ABS_FEATURE, _plain
 
 _DASK_EXTRA = 'pip install "skbayeslogit[dask]"'
 
@@ -404,8 +405,6 @@ def validate_source(estimator, source):
     Returns the merged block statistics (``_stats_piece``) for the column
     moments that ``prior_scale="auto"`` and the tempered model use.
     """
-    from ._base import _MAX_ABS_FEATURE, _plain
-
     if source.n < 1:
         raise ValueError("Found array with 0 sample(s) while a minimum of 1 is required.")
     st = source.stats()

@@ -7,14 +7,7 @@ import numpy as np
 from scipy.optimize import minimize
 from sklearn.exceptions import ConvergenceWarning
 
-from ._base import (
-    LinearClassifierBase,
-    check_bool,
-    check_positive_float,
-    check_positive_int,
-    check_scale,
-    free_parameter_map,
-)
+from ._base import LinearClassifierBase, free_parameter_map
 from ._design import LinearDesign
 from ._likelihoods import BinaryLogistic, MultinomialLogistic
 from ._newton import NewtonProblem, solve_map
@@ -24,6 +17,7 @@ from ._tempered import (
     bitempered_loss_binary,
     tempered_softmax,
 )
+from ._validation import check_bool, check_positive_float, check_positive_int, check_scale
 
 # Rows of the sample on which the convex (t1 = t2 = 1) start is fitted when
 # the data are larger.
