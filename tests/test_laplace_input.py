@@ -165,3 +165,45 @@ def test_nearly_collinear_columns_warn(data):
     near = np.column_stack([X, X[:, 0] + 1e-6 * rng.normal(size=len(X))])
     with pytest.warns(CollinearityWarning, match="x3"):
         LaplaceLogisticClassifier(prior_scale=None).fit(near, y)
+
+
+@pytest.mark.parametrize(
+    "shape", [(1, 1), (3, 7), (1_000, 1), (1_000, 3), (12_345, 50), (5, 2_000), (70_001, 20)]
+)
+def test_column_range_equals_numpy(shape):
+    """The wide-view range check gives numpy's column min and max exactly,
+    NaN and infinity included, for every block / remainder split."""
+    from skbayeslogit._validation import _column_range
+
+    rng = np.random.default_rng(sum(shape))
+    X = rng.standard_normal(shape) * rng.uniform(0.1, 10, shape[1])
+    lo, hi = _column_range(X)
+    np.testing.assert_array_equal(lo, X.min(axis=0))
+    np.testing.assert_array_equal(hi, X.max(axis=0))
+    X[-1, -1], X[0, 0] = np.nan, np.inf
+    lo, hi = _column_range(X)
+    np.testing.assert_array_equal(lo, X.min(axis=0))
+    np.testing.assert_array_equal(hi, X.max(axis=0))
+
+
+@pytest.mark.parametrize(
+    "y",
+    [
+        np.array([1, 0, 1, 1]),
+        np.array([-5, 3, 3, -5, 0], dtype=np.int8),
+        np.array([True, False, True]),
+        np.array([10**12, 3, 3]),  # wide range: the sorting path
+        np.array([2, 0, 2], dtype=np.uint64),
+        np.array(["b", "a", "b"]),
+        np.array([1.0, 0.0, 1.0]),
+    ],
+)
+def test_label_encoding_equals_numpy_unique(y):
+    """Classes (values and dtype) and codes as np.unique(return_inverse=True)."""
+    from skbayeslogit._validation import encode_labels
+
+    classes, codes = encode_labels(y)
+    ref_classes, ref_codes = np.unique(y, return_inverse=True)
+    assert classes.dtype == ref_classes.dtype and codes.dtype == np.int64
+    np.testing.assert_array_equal(classes, ref_classes)
+    np.testing.assert_array_equal(codes, ref_codes)
