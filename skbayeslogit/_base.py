@@ -31,7 +31,7 @@ from sklearn.utils import check_random_state
 from sklearn.utils.multiclass import check_classification_targets
 from sklearn.utils.validation import _check_sample_weight, check_is_fitted, validate_data
 
-from ._design import LinearDesign
+from ._design import LinearDesign, passes_own_threads
 from ._newton import NewtonProblem, solve_map
 from ._posterior import GaussianPosterior
 from ._sources import dask_aware, fit_design, is_out_of_core
@@ -48,6 +48,7 @@ from ._validation import (
     check_positive_float,
     check_positive_int,
     check_scale,
+    encode_labels,
 )
 from .exceptions import CollinearityWarning, SeparationWarning
 
@@ -92,9 +93,11 @@ class LinearClassifierBase(ClassifierMixin, BaseEstimator):
             ensure_all_finite=False,
         )
         _check_magnitude(X)
-        check_classification_targets(y)
-        self.classes_, y_codes = np.unique(y, return_inverse=True)
-        y_codes = y_codes.astype(np.int64)
+        if y.dtype.kind not in "biu":
+            # Integer or boolean 1-D labels are always class labels; the
+            # check (a second sort of y) is for floats and objects.
+            check_classification_targets(y)
+        self.classes_, y_codes = encode_labels(y)
         n_classes = len(self.classes_)
         if n_classes < 2:
             raise ValueError(
@@ -383,11 +386,12 @@ class GaussianPosteriorClassifier(LinearClassifierBase):
             result = solve_map(problem, phi0, max_iter=self.max_iter, tol=self.tol, warn=warn)
             return result, self._log_evidence(design, problem, result, scale)
 
-        if self._prior_scale == "auto":
-            scale, result, log_ev = self._maximise_evidence(X, w, fit_at, design)
-        else:
-            scale = self._prior_scale
-            result, log_ev = fit_at(scale)
+        with passes_own_threads():
+            if self._prior_scale == "auto":
+                scale, result, log_ev = self._maximise_evidence(X, w, fit_at, design)
+            else:
+                scale = self._prior_scale
+                result, log_ev = fit_at(scale)
 
         self.prior_scale_ = scale
         self.log_evidence_ = log_ev

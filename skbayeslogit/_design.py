@@ -2,10 +2,11 @@
 
 This is the only place that touches the feature matrix during a fit. It never
 copies X as a whole (the intercept is handled as a separate term, not as an
-appended column of ones), and it accumulates the loss, the gradient and the
-Hessian in one pass per Newton iteration, in blocks of rows small enough to
-stay in cache. The same blocked pass is what an out-of-core or distributed
-data source would provide.
+appended column of ones). Two passes are offered: loss and gradient
+(``loss_grad``, the solver's cheap pass) and loss, gradient and Hessian
+(``loss_grad_hess``), each reading every block of rows once, in blocks small
+enough to stay in cache, with row spans spread over worker threads. The same
+blocked passes are what an out-of-core or distributed data source provides.
 
 Parameter layout ("full" vector, length ``q * d + q`` with an intercept,
 ``q * d`` without): the q coefficient rows one after the other, then the q
@@ -15,6 +16,7 @@ intercepts. ``q`` is 1 for a binary model and K for a K-class softmax model.
 import os
 import threading
 from concurrent.futures import ThreadPoolExecutor
+from contextlib import contextmanager
 
 import numpy as np
 from scipy.linalg.blas import dsyrk
@@ -27,6 +29,7 @@ _pool = None
 _pool_workers = 0
 _pool_lock = threading.Lock()
 _controller = None
+_held = threading.local()  # .threads: BLAS's own count while a fit holds it at 1
 
 
 def _reset_after_fork():
@@ -54,8 +57,52 @@ def _blas_threads():
     return max(info) if info else 1
 
 
-def _map_tasks(func, tasks):
+@contextmanager
+def passes_own_threads():
+    """Hold BLAS at one thread for a whole fit; the passes' workers replace it.
+
+    Lowering BLAS's thread count around every pass and restoring it after
+    made the next small multi-threaded LAPACK call (the Cholesky of the
+    Newton step) wait for OpenBLAS's threads to wake: 10-100 ms measured
+    for a 509 x 509 factor that takes 1 ms. Holding one thread from the
+    start of a fit to its end removes that wait; the passes still use as
+    many workers as BLAS was allowed threads (at most ``_MAX_WORKERS``).
+    Nested use is a no-op. The BLAS setting is process-wide, as is
+    threadpoolctl's: other threads' BLAS calls during the fit run on one
+    thread too.
+    """
+    if getattr(_held, "threads", None) is not None:
+        yield
+        return
+    threads = _blas_threads()
+    if threads <= 1:
+        yield
+        return
+    with _blas_controller().limit(limits=1, user_api="blas"):
+        _held.threads = threads
+        try:
+            yield
+        finally:
+            _held.threads = None
+
+
+def task_span(n, rows):
+    """Rows per task: ``_TASK_BLOCKS`` blocks, fewer when n is small.
+
+    At least four tasks per pass when the data have four blocks, so that a
+    subsample's pass (20,000 rows, say) still keeps every worker busy.
+    """
+    blocks = max(1, min(_TASK_BLOCKS, n // (4 * max(rows, 1))))
+    return rows * blocks
+
+
+def _map_tasks(func, tasks, fold=None):
     """``[func(*t) for t in tasks]``, spread over threads when it pays.
+
+    With ``fold``, the results are instead combined in task order as they
+    arrive, ``acc = fold(acc, result)``, and ``acc`` is returned: at most a
+    few results (about one per worker) are alive at once, which matters when
+    each is a p x p Hessian.
 
     Each task runs single-threaded BLAS calls on its own rows; the workers
     take the place of BLAS's own threads (as many as BLAS was allowed, at
@@ -65,25 +112,35 @@ def _map_tasks(func, tasks):
     sum does not depend on scheduling.
     """
     global _pool, _pool_workers
-    threads = _blas_threads()
-    if threads <= 1:
-        return [func(*t) for t in tasks]
+    held = getattr(_held, "threads", None)
+    threads = held if held is not None else _blas_threads()
     workers = min(threads, _MAX_WORKERS, len(tasks))
     if workers <= 1:
-        # One task: no thread-count change. Lowering and restoring the BLAS
-        # thread count around a small pass made the next small LAPACK call
-        # (the Cholesky of the Newton step) wait ~10 ms for OpenBLAS's
-        # threads on a busy machine: more than the whole of a small fit.
-        return [func(*t) for t in tasks]
+        # One thread, or one task: no thread-count change. Lowering and
+        # restoring the BLAS thread count around a small pass made the next
+        # small LAPACK call (the Cholesky of the Newton step) wait ~10 ms for
+        # OpenBLAS's threads on a busy machine: more than a small fit.
+        return _collect((func(*t) for t in tasks), fold)
+    with _pool_lock:
+        if _pool is None or _pool_workers < workers:
+            if _pool is not None:
+                _pool.shutdown(wait=False)
+            _pool = ThreadPoolExecutor(max_workers=workers, thread_name_prefix="skbl")
+            _pool_workers = workers
+        pool = _pool
+    if held is not None:
+        return _collect(pool.map(lambda t: func(*t), tasks), fold)
     with _blas_controller().limit(limits=1, user_api="blas"):
-        with _pool_lock:
-            if _pool is None or _pool_workers < workers:
-                if _pool is not None:
-                    _pool.shutdown(wait=False)
-                _pool = ThreadPoolExecutor(max_workers=workers, thread_name_prefix="skbl")
-                _pool_workers = workers
-            pool = _pool
-        return list(pool.map(lambda t: func(*t), tasks))
+        return _collect(pool.map(lambda t: func(*t), tasks), fold)
+
+
+def _collect(results, fold):
+    if fold is None:
+        return list(results)
+    acc = None
+    for r in results:
+        acc = r if acc is None else fold(acc, r)
+    return acc
 
 
 class LinearDesign:
@@ -129,6 +186,73 @@ class LinearDesign:
             return X @ W[0] + b[0]
         return X @ W.T + b
 
+    # -- one pass: loss and gradient --------------------------------------
+    def loss_grad(self, likelihood, y, w, theta):
+        """Loss sum, gradient and linear predictor at ``theta``: no Hessian.
+
+        The pass of the solver's metric phase (``_newton``): each block of X
+        is read once for its predictor and reused from cache for the
+        gradient, in tasks over row spans as in the binary Hessian pass.
+
+        Parameters
+        ----------
+        likelihood : object with ``loss_grad(y, eta, w)``
+        y, w : ndarray of shape (n,)
+        theta : ndarray of shape (p_full,)
+
+        Returns
+        -------
+        loss : float
+        grad : ndarray (p_full,)
+        eta : ndarray of shape (n,) or (n, q)
+        """
+        W, b = self.split(theta)
+        eta = np.empty(self.n) if self.q == 1 else np.empty((self.n, self.q))
+        rows = min(self.block_rows, self.n)
+        span = task_span(self.n, rows)
+        tasks = [
+            (likelihood, y, w, W, b, eta, start, min(start + span, self.n), rows)
+            for start in range(0, self.n, span)
+        ]
+        parts = _map_tasks(self._gradient_task, tasks)
+        loss = 0.0
+        gW = np.zeros((self.q, self.d))
+        gb = np.zeros(self.q)
+        for lb, gw, gi in parts:
+            loss += lb
+            gW += gw
+            gb += gi
+        grad = gW.ravel()
+        if self.fit_intercept:
+            grad = np.concatenate([grad, gb])
+        return loss, grad, eta
+
+    def _gradient_task(self, likelihood, y, w, W, b, eta, first, last, rows):
+        """Loss, coefficient gradient (q, d) and intercept gradient (q,) of rows [first, last)."""
+        binary = self.q == 1
+        gW = np.zeros((self.q, self.d))
+        gb = np.zeros(self.q)
+        loss = 0.0
+        for start in range(first, last, rows):
+            stop = min(start + rows, last)
+            Xb = self.X[start:stop]
+            eb = eta[start:stop]
+            if binary:
+                np.matmul(Xb, W[0], out=eb)
+            else:
+                np.matmul(Xb, W.T, out=eb)
+            if self.fit_intercept:
+                eb += b if not binary else b[0]
+            lb, g = likelihood.loss_grad(y[start:stop], eb, w[start:stop])
+            loss += lb
+            if binary:
+                gW[0] += Xb.T @ g
+                gb[0] += float(np.sum(g))
+            else:
+                gW += g.T @ Xb
+                gb += g.sum(axis=0)
+        return loss, gW, gb
+
     # -- one pass: loss, gradient, Hessian --------------------------------
     def loss_grad_hess(self, likelihood, y, w, theta, eta=None):
         """Loss sum, gradient and Hessian at ``theta``, and the predictor.
@@ -154,25 +278,17 @@ class LinearDesign:
         """
         if self.q == 1:
             return self._loss_grad_hess_binary(likelihood, y, w, theta, eta)
-        p = self.p_full
         W, b = self.split(theta)
-        if eta is None:
+        fill = eta is None
+        if fill:
             eta = np.empty((self.n, self.q))
-            fill = True
-        else:
-            fill = False
-        grad = np.zeros(p)
-        hess = np.zeros((p, p))
-        loss = 0.0
-        for start in range(0, self.n, self.block_rows):
-            stop = min(start + self.block_rows, self.n)
-            Xb = self.X[start:stop]
-            if fill:
-                np.matmul(Xb, W.T, out=eta[start:stop])
-                eta[start:stop] += b
-            lb, g, h = likelihood.derivatives(y[start:stop], eta[start:stop], w[start:stop])
-            loss += lb
-            self._accumulate_multi(Xb, g, h, grad, hess)
+        rows = min(self.block_rows, self.n)
+        span = task_span(self.n, rows)
+        tasks = [
+            (likelihood, y, w, W, b, eta, fill, start, min(start + span, self.n), rows)
+            for start in range(0, self.n, span)
+        ]
+        loss, grad, hess = _map_tasks(self._multi_task, tasks, fold=_add_parts)
         # Only the upper triangle was accumulated.
         hess = np.triu(hess) + np.triu(hess, 1).T
         return loss, grad, hess, eta
@@ -195,7 +311,7 @@ class LinearDesign:
         if fill:
             eta = np.empty(self.n)
         rows = min(self.block_rows, self.n)
-        span = rows * _TASK_BLOCKS
+        span = task_span(self.n, rows)
         tasks = [
             (likelihood, y, w, coef, b0, eta, fill, start, min(start + span, self.n), rows)
             for start in range(0, self.n, span)
@@ -245,6 +361,23 @@ class LinearDesign:
             hess = dsyrk(1.0, A.T, beta=1.0, c=hess, trans=0, lower=0, overwrite_c=1)
         return loss, gx, gb, hess
 
+    def _multi_task(self, likelihood, y, w, W, b, eta, fill, first, last, rows):
+        """Loss, gradient and upper Hessian of rows [first, last), q > 1."""
+        p = self.p_full
+        grad = np.zeros(p)
+        hess = np.zeros((p, p))
+        loss = 0.0
+        for start in range(first, last, rows):
+            stop = min(start + rows, last)
+            Xb = self.X[start:stop]
+            if fill:
+                np.matmul(Xb, W.T, out=eta[start:stop])
+                eta[start:stop] += b
+            lb, g, h = likelihood.derivatives(y[start:stop], eta[start:stop], w[start:stop])
+            loss += lb
+            self._accumulate_multi(Xb, g, h, grad, hess)
+        return loss, grad, hess
+
     def _accumulate_multi(self, Xb, g, h, grad, hess):
         d, q, nc = self.d, self.q, self.n_coef
         grad[:nc] += (g.T @ Xb).ravel()
@@ -260,3 +393,10 @@ class LinearDesign:
             for k in range(q):
                 hess[k * d : (k + 1) * d, nc:] += cross[:, k, :]
             hess[nc:, nc:] += h.sum(axis=0)
+
+
+def _add_parts(acc, part):
+    """Sum (loss, grad, hess) task results, in place in ``acc``'s arrays."""
+    acc[1][:] += part[1]
+    acc[2][:] += part[2]
+    return acc[0] + part[0], acc[1], acc[2]

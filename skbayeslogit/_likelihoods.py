@@ -15,6 +15,11 @@ Multiclass likelihoods (``n_outputs == K``) take integer class codes ``y`` of
 shape (n,), ``eta`` of shape (n, K) and return ``g`` of shape (n, K) and ``h``
 of shape (n, K, K). All returned quantities already include the row weights
 ``w`` (shape (n,), non-negative).
+
+Each likelihood has ``loss``, ``loss_grad`` (loss and ``g``) and
+``derivatives`` (loss, ``g`` and ``h``): the solver's gradient-only passes
+(``_newton``) call ``loss_grad``, which skips ``h``, the costly part for K
+classes (K x K per row).
 """
 
 import numpy as np
@@ -43,6 +48,12 @@ class BinaryLogistic:
         # p (1 - p) is formed as e / (1 + e)^2 with e = exp(-|eta|): no
         # cancellation near p = 1; one exponential per row for all three.
         return logistic_derivatives(y, eta, w)
+
+    def loss_grad(self, y, eta, w):
+        """Loss sum and g = w (p - y), shape (n,), without the Hessian factor."""
+        # The fused kernel's h costs one multiply a row more than skipping it.
+        loss, g, _ = logistic_derivatives(y, eta, w)
+        return loss, g
 
     def log_prob_positive(self, eta):
         """log P(y = 1 | eta), shape of ``eta``."""
@@ -83,6 +94,16 @@ class MultinomialLogistic:
         k = np.arange(self.n_outputs)
         h[:, k, k] += wp
         return loss, g, h
+
+    def loss_grad(self, y, eta, w):
+        """Loss sum and g = w (p - onehot(y)), shape (n, K), without h."""
+        logp = self._log_softmax(eta)
+        rows = np.arange(len(y))
+        loss = float(-(w @ logp[rows, y]))
+        g = np.exp(logp)
+        g *= w[:, None]
+        g[rows, y] -= w
+        return loss, g
 
 
 class BinaryProbit:
@@ -135,6 +156,15 @@ class BinaryProbit:
         g = -(w * s) * lam
         h = w * probit_hessian_factor(z, lam)
         return loss, g, h
+
+    def loss_grad(self, y, eta, w):
+        """Loss sum and g = -w s lambda(s eta), shape (n,), without h."""
+        s = 2.0 * y - 1.0
+        z = s * eta
+        log_cdf = log_ndtr(z)
+        loss = float(-(w @ log_cdf))
+        lam = np.exp(-0.5 * z * z - _HALF_LOG_2PI - log_cdf)
+        return loss, -(w * s) * lam
 
     def log_prob_positive(self, eta):
         """log P(y = 1 | eta) = log Phi(eta), shape of ``eta``."""

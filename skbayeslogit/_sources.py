@@ -113,6 +113,12 @@ def _newton_piece(X, y, w, likelihood, theta, q, fit_intercept):
     return np.concatenate([[loss], grad, hess.ravel()])
 
 
+def _loss_grad_piece(X, y, w, likelihood, theta, q, fit_intercept):
+    """[loss, gradient] of one block, by the in-memory gradient pass."""
+    loss, grad, _ = LinearDesign(_as_block(X), q, fit_intercept).loss_grad(likelihood, y, w, theta)
+    return np.concatenate([[loss], grad])
+
+
 def _loss_piece(X, y, w, likelihood, theta, q, fit_intercept):
     eta = LinearDesign(_as_block(X), q, fit_intercept).linear_predictor(theta)
     return np.array([likelihood.loss(y, eta, w)])
@@ -500,6 +506,13 @@ class SourceDesign(LinearDesign):
         # Each block's Hessian is symmetric; the sum is, up to rounding.
         hess = 0.5 * (hess + hess.T)
         return float(packed[0]), packed[1 : 1 + p].copy(), hess, None
+
+    def loss_grad(self, likelihood, y, w, theta):
+        """Loss sum and gradient at ``theta``; eta is not kept (None)."""
+        out = self.source.reduce(
+            _loss_grad_piece, likelihood, np.asarray(theta), self.q, self.fit_intercept
+        )
+        return float(out[0]), out[1:].copy(), None
 
     def loss(self, likelihood, theta):
         """Loss sum at ``theta`` (a pass that recomputes eta block by block)."""

@@ -429,17 +429,113 @@ def test_decision_function_ranks_as_predict_proba():
         np.testing.assert_allclose(proba.sum(axis=1), 1.0)
 
 
-def test_large_data_fit_uses_warm_start_and_agrees_with_sklearn():
-    """Above the warm-start threshold the fit must still reach the same MAP
-    (scikit-learn LogisticRegression, same L2)."""
+def _hessian_pass_rows(monkeypatch):
+    """A list that records the row count of every Hessian pass from now on."""
+    from skbayeslogit import _design
+
+    rows = []
+    plain = _design.LinearDesign.loss_grad_hess
+
+    def counted(self, *args, **kwargs):
+        rows.append(self.n)
+        return plain(self, *args, **kwargs)
+
+    monkeypatch.setattr(_design.LinearDesign, "loss_grad_hess", counted)
+    return rows
+
+
+def test_large_data_fit_uses_subsample_metric_and_agrees_with_sklearn(monkeypatch):
+    """Above the subsample threshold the fit must still reach the same MAP
+    (scikit-learn LogisticRegression, same L2), with one Hessian pass over
+    all the rows: at the returned point, the posterior precision."""
     rng = np.random.default_rng(0)
     n, d = 250_000, 5
     X = rng.normal(size=(n, d))
     y = (rng.random(n) < expit(X @ np.linspace(-1, 1, d) + 0.3)).astype(int)
+    rows = _hessian_pass_rows(monkeypatch)
     ours = LaplaceLogisticClassifier(prior_scale=1.0, tol=1e-12).fit(X, y)
     ref = LogisticRegression(C=1.0, solver="newton-cholesky", tol=1e-12).fit(X, y)
     np.testing.assert_allclose(ours.coef_, ref.coef_, atol=1e-6)
-    assert ours.n_iter_ <= 4  # warm start: only the last few Newton steps see all rows
+    assert rows.count(n) == 1 and rows[-1] == n
+    # The covariance is the inverse Hessian at the returned MAP, recomputed
+    # here independently of the fit (Bishop, PRML (2006), eq. 4.143).
+    Xt = np.column_stack([X, np.ones(n)])
+    p = expit(Xt @ ours.posterior_mean_)
+    H = (Xt * (p * (1 - p))[:, None]).T @ Xt + np.diag([1.0] * d + [0.0])
+    np.testing.assert_allclose(ours.posterior_cov_, np.linalg.inv(H), rtol=1e-9)
+
+
+@pytest.mark.parametrize("kind", ["binary", "multiclass", "probit"])
+def test_subsample_metric_path_equals_plain_newton(kind, monkeypatch):
+    """Forced onto small data, the subsample-start, fixed-metric path must
+    give the plain Newton path's answer: both stop within tol = 1e-12 nats
+    of the same optimum, i.e. about sqrt(2e-12) ~ 1.4e-6 posterior sd."""
+    from skbayeslogit import ProbitClassifier, _newton
+
+    rng = np.random.default_rng(3)
+    n, d = 4_000, 4
+    X = rng.normal(size=(n, d)) * [1.0, 2.0, 0.5, 1.0]
+    eta = X @ np.array([0.8, -0.3, 1.5, 0.0])
+    if kind == "multiclass":
+        y = np.argmax(np.column_stack([eta, -eta, 0.5 * X[:, 3]]) + rng.gumbel(size=(n, 3)), 1)
+    else:
+        y = (eta + rng.logistic(size=n) > 0).astype(int)
+    w = rng.integers(1, 4, n).astype(float)
+    make = ProbitClassifier if kind == "probit" else LaplaceLogisticClassifier
+
+    def fit():
+        return make(prior_scale=2.0, tol=1e-12).fit(X, y, sample_weight=w)
+
+    monkeypatch.setattr(_newton, "_METRIC_MIN_RATIO", 10**9)
+    plain = fit()
+    monkeypatch.setattr(_newton, "_METRIC_MIN_ROWS", 500)
+    monkeypatch.setattr(_newton, "_METRIC_MIN_RATIO", 4)
+    assert _newton._metric_rows(n, plain.posterior_mean_.size) == 500
+    rows = _hessian_pass_rows(monkeypatch)
+    fast = fit()
+    assert rows.count(n) == 1
+    sd = np.sqrt(np.diag(plain.posterior_cov_))
+    assert np.max(np.abs(fast.posterior_mean_ - plain.posterior_mean_) / sd) < 1e-5
+    # Entries compared on the scale of the largest variance (some are ~1e-6).
+    scale = np.max(np.diag(plain.posterior_cov_))
+    np.testing.assert_allclose(
+        fast.posterior_cov_, plain.posterior_cov_, rtol=1e-6, atol=1e-6 * scale
+    )
+    # log det H moves by tr(H^-1 dH) = O(p x 1e-6 sd x the third derivative)
+    # between the two points; E itself by at most 1e-12.
+    assert fast.log_evidence_ == pytest.approx(plain.log_evidence_, abs=1e-7)
+
+
+def test_poor_subsample_metric_hands_over_to_newton(monkeypatch):
+    """A column that is non-zero in 3 rows of 20,000 is absent from most
+    500-row subsamples: the subsample Hessian then has only the prior's
+    curvature along it and its steps overshoot. The fit must notice and
+    finish with exact Newton, at the plain path's optimum."""
+    from skbayeslogit import _newton
+
+    rng = np.random.default_rng(5)
+    n = 20_000
+    X = rng.normal(size=(n, 3))
+    X[:, 2] = 0.0
+    X[[11, 5_000, 17_000], 2] = [40.0, -25.0, 60.0]
+    y = (X[:, 0] - X[:, 1] + 0.05 * X[:, 2] + rng.logistic(size=n) > 0).astype(int)
+
+    def fit():
+        return LaplaceLogisticClassifier(prior_scale=1.0, tol=1e-12).fit(X, y)
+
+    monkeypatch.setattr(_newton, "_METRIC_MIN_RATIO", 10**9)
+    plain = fit()
+    monkeypatch.setattr(_newton, "_METRIC_MIN_ROWS", 500)
+    monkeypatch.setattr(_newton, "_METRIC_MIN_RATIO", 4)
+    # The subsample the solver draws (NewtonProblem.subsample, seed 0)
+    # misses all three rows.
+    idx = np.random.default_rng(0).choice(n, size=500, replace=False)
+    assert not np.any(X[idx, 2])
+    rows = _hessian_pass_rows(monkeypatch)
+    fast = fit()
+    assert rows.count(n) >= 2  # the metric phase gave up: exact Newton passes
+    sd = np.sqrt(np.diag(plain.posterior_cov_))
+    assert np.max(np.abs(fast.posterior_mean_ - plain.posterior_mean_) / sd) < 1e-5
 
 
 def test_feature_names_and_pandas_str_labels():

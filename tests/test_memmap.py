@@ -76,15 +76,21 @@ def test_memmap_fit_equals_in_memory(data, small_blocks, model, params, target, 
 
 
 def test_memmap_subsample_warm_start_matches(data, small_blocks, monkeypatch):
-    # Force the subsample warm start on small data: the same rows are drawn
-    # from the memory map as from the array.
+    # Force the subsample start and metric phase on small data: the same rows
+    # are drawn from the memory map as from the array, and the
+    # loss-and-gradient passes run block by block on the source.
     X, mm, y2, _, w = data
-    monkeypatch.setattr(_newton, "_SUBSAMPLE_MIN_ROWS", 1_000)
-    monkeypatch.setattr(_newton, "_SUBSAMPLE_ROWS", 800)
+    monkeypatch.setattr(_newton, "_METRIC_MIN_ROWS", 800)
+    monkeypatch.setattr(_newton, "_METRIC_MIN_RATIO", 2)
+    assert _newton._metric_rows(len(X), X.shape[1] + 1) == 800
     ref = LaplaceLogisticClassifier(prior_scale=1.0).fit(X, y2, sample_weight=w)
     got = LaplaceLogisticClassifier(prior_scale=1.0).fit(mm, y2, sample_weight=w)
     assert got.n_iter_ == ref.n_iter_
     assert _rel(got.coef_, ref.coef_) < RTOL
+    # And both agree with the plain Newton path (no subsample) to the tolerance.
+    monkeypatch.setattr(_newton, "_METRIC_MIN_RATIO", 10**9)
+    plain = LaplaceLogisticClassifier(prior_scale=1.0).fit(X, y2, sample_weight=w)
+    assert _rel(got.coef_, plain.coef_) < 1e-4
 
 
 def test_memmap_checks_run_blockwise(tmp_path, small_blocks):
