@@ -61,7 +61,7 @@ class GaussianPosterior:
         z = rng.standard_normal((n_draws, self.R.shape[0]))
         return self.mean + z @ self.R
 
-    def latent_moments(self, design, X):
+    def latent_moments(self, design, X, chunk=None):
         """Mean and (co)variance of eta = x^T W^T + b for each row of X.
 
         Parameters
@@ -75,10 +75,15 @@ class GaussianPosterior:
         mean : ndarray of shape (n,) if q == 1 else (n, q)
         var : ndarray of shape (n,) if q == 1 else (n, q, q)
             Variance (binary) or covariance matrix (multiclass) per row.
+        chunk : callable, optional
+            Binary only: ``chunk(mean_c, var_c, start, stop)`` is called on
+            each chunk's moments as soon as they are computed, while they
+            are in cache, on the worker thread that computed them (the
+            predictive probability is finished there, in parallel).
         """
         q, d, nc = design.q, design.d, design.n_coef
         if q == 1:
-            return self._latent_moments_binary(design, X)
+            return self._latent_moments_binary(design, X, chunk)
         mean = design.linear_predictor(self.mean, X)
         n = X.shape[0]
         var = np.empty(n) if q == 1 else np.empty((n, q, q))
@@ -104,7 +109,7 @@ class GaussianPosterior:
                         block[:, l, k] = c
         return mean, var
 
-    def _latent_moments_binary(self, design, X):
+    def _latent_moments_binary(self, design, X, chunk=None):
         """q == 1: one matrix product per chunk gives both moments.
 
         With x~ = (x, 1) (intercept) and M = [R_x^T, m_x] (d, p + 1),
@@ -138,6 +143,8 @@ class GaussianPosterior:
                 mean[start:stop] = Uc[:, p]
                 Ur = Uc[:, :p]
                 np.einsum("ij,ij->i", Ur, Ur, out=var[start:stop])
+                if chunk is not None:
+                    chunk(mean[start:stop], var[start:stop], start, stop)
 
         _map_tasks(task, [(a, min(a + span, n)) for a in range(0, n, span)])
         return mean, var

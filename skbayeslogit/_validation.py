@@ -162,6 +162,53 @@ def _check_finite(X):
 
 _RANGE_BLOCK_BYTES = 1 << 20  # rows per block: ~1 MiB, read once for both reductions
 _RANGE_WIDTH = 1024  # values per row of the wide view the reductions run along
+_RANGE_TASK_BLOCKS = 16  # blocks per worker task
+
+
+def _span_range(X, first, last, r, block):
+    """Column minima and maxima of rows [first, last) (see ``_column_range``)."""
+    d = X.shape[1]
+    colmax = np.full(d, -np.inf)
+    colmin = np.full(d, np.inf)
+    for start in range(first, last, block):
+        Xb = X[start : min(start + block, last)]
+        m = len(Xb) // r * r
+        parts = [Xb[:m].reshape(-1, r * d)] if m else []
+        if m < len(Xb):
+            parts.append(Xb[m:])
+        for part in parts:
+            width = part.shape[1]
+            np.maximum(colmax, part.max(axis=0).reshape(width // d, d).max(axis=0), out=colmax)
+            np.minimum(colmin, part.min(axis=0).reshape(width // d, d).min(axis=0), out=colmin)
+    return colmin, colmax
+
+
+def _fold_range(acc, part):
+    return np.minimum(acc[0], part[0]), np.maximum(acc[1], part[1])
+
+
+def _flat_span_range(flat, first, last, block):
+    lo, hi = np.inf, -np.inf
+    for start in range(first, last, block):
+        part = flat[start : min(start + block, last)]
+        # np.minimum, not min(): Python's min would drop a NaN.
+        lo, hi = np.minimum(lo, part.min()), np.maximum(hi, part.max())
+    return lo, hi
+
+
+def _overall_range(X):
+    """Minimum and maximum of all of a C-contiguous X (NaN propagates), in
+    ~1 MiB blocks (the minimum rereads each from cache) on worker threads."""
+    from ._design import _map_tasks
+
+    flat = X.reshape(-1)
+    block = _RANGE_BLOCK_BYTES // 8
+    span = block * _RANGE_TASK_BLOCKS
+    tasks = [(flat, a, min(a + span, flat.size), block) for a in range(0, flat.size, span)]
+    parts = _map_tasks(_flat_span_range, tasks)
+    lo = np.array([part[0] for part in parts])
+    hi = np.array([part[1] for part in parts])
+    return lo.min(), hi.max()
 
 
 def _column_range(X):
@@ -172,24 +219,17 @@ def _column_range(X):
     one row of r d values (no copy) makes the inner loop long and
     vectorised, and reducing the r partial rows at the end gives the same
     values exactly (max and min are order-free). Blocks of about 1 MiB let
-    the minimum reread each block from cache.
+    the minimum reread each block from cache; spans of blocks run on the
+    design's worker threads (numpy releases the GIL in reductions).
     """
+    from ._design import _map_tasks
+
     n, d = X.shape
     r = max(1, _RANGE_WIDTH // max(d, 1))
     block = max(r, (_RANGE_BLOCK_BYTES // (8 * max(d, 1))) // r * r)
-    colmax = np.full(d, -np.inf)
-    colmin = np.full(d, np.inf)
-    for start in range(0, n, block):
-        Xb = X[start : start + block]
-        m = len(Xb) // r * r
-        parts = [Xb[:m].reshape(-1, r * d)] if m else []
-        if m < len(Xb):
-            parts.append(Xb[m:])
-        for part in parts:
-            width = part.shape[1]
-            np.maximum(colmax, part.max(axis=0).reshape(width // d, d).max(axis=0), out=colmax)
-            np.minimum(colmin, part.min(axis=0).reshape(width // d, d).min(axis=0), out=colmin)
-    return colmin, colmax
+    span = block * _RANGE_TASK_BLOCKS
+    tasks = [(X, a, min(a + span, n), r, block) for a in range(0, n, span)]
+    return _map_tasks(_span_range, tasks, fold=_fold_range)
 
 
 def _check_magnitude(X, per_column=True):
@@ -204,8 +244,8 @@ def _check_magnitude(X, per_column=True):
     """
     if X.size == 0:
         return
-    if per_column and X.flags.c_contiguous:
-        colmin, colmax = _column_range(X)
+    if X.flags.c_contiguous:
+        colmin, colmax = _column_range(X) if per_column else _overall_range(X)
     else:
         axis = 0 if per_column else None
         colmax, colmin = np.max(X, axis=axis), np.min(X, axis=axis)

@@ -429,6 +429,27 @@ def test_decision_function_ranks_as_predict_proba():
         np.testing.assert_allclose(proba.sum(axis=1), 1.0)
 
 
+@pytest.mark.parametrize("predictive", ["default", "map"])
+def test_binary_predict_proba_is_expit_of_decision_function(predictive):
+    """The chunked binary predict_proba (probabilities finished on the worker
+    threads) equals the definition expit(+-decision_function) exactly, over
+    many chunks and tasks, for both Gaussian-posterior models."""
+    from scipy.special import expit as sp_expit
+
+    from skbayeslogit import ProbitClassifier
+
+    rng = np.random.default_rng(8)
+    X = rng.normal(size=(150_000, 3))
+    y = (X @ [1.0, -2.0, 0.5] + rng.logistic(size=len(X)) > 0).astype(int)
+    for make in (LaplaceLogisticClassifier, ProbitClassifier):
+        options = {} if predictive == "default" else {"predictive": predictive}
+        model = make(prior_scale=1.0, **options).fit(X[:2_000], y[:2_000])
+        scores = model.decision_function(X)
+        proba = model.predict_proba(X)
+        np.testing.assert_array_equal(proba[:, 1], sp_expit(scores))
+        np.testing.assert_array_equal(proba[:, 0], sp_expit(-scores))
+
+
 def _hessian_pass_rows(monkeypatch):
     """A list that records the row count of every Hessian pass from now on."""
     from skbayeslogit import _design

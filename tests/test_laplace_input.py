@@ -173,17 +173,17 @@ def test_nearly_collinear_columns_warn(data):
 def test_column_range_equals_numpy(shape):
     """The wide-view range check gives numpy's column min and max exactly,
     NaN and infinity included, for every block / remainder split."""
-    from skbayeslogit._validation import _column_range
+    from skbayeslogit._validation import _column_range, _overall_range
 
     rng = np.random.default_rng(sum(shape))
     X = rng.standard_normal(shape) * rng.uniform(0.1, 10, shape[1])
-    lo, hi = _column_range(X)
-    np.testing.assert_array_equal(lo, X.min(axis=0))
-    np.testing.assert_array_equal(hi, X.max(axis=0))
-    X[-1, -1], X[0, 0] = np.nan, np.inf
-    lo, hi = _column_range(X)
-    np.testing.assert_array_equal(lo, X.min(axis=0))
-    np.testing.assert_array_equal(hi, X.max(axis=0))
+    for special in (None, (np.inf, -np.inf), (np.nan, 1.0)):
+        if special is not None:
+            X[-1, -1], X[0, 0] = special
+        lo, hi = _column_range(X)
+        np.testing.assert_array_equal(lo, X.min(axis=0))
+        np.testing.assert_array_equal(hi, X.max(axis=0))
+        np.testing.assert_array_equal(_overall_range(X), (X.min(), X.max()))
 
 
 @pytest.mark.parametrize(
