@@ -204,7 +204,15 @@ class NewtonProblem:
 
 
 def newton_solve(
-    problem, phi0, *, max_iter=100, tol=1e-8, armijo=1e-4, eta0=None, final_step=True
+    problem,
+    phi0,
+    *,
+    max_iter=100,
+    tol=1e-8,
+    armijo=1e-4,
+    eta0=None,
+    final_step=True,
+    start=None,
 ):
     """Minimise ``problem``'s objective from ``phi0`` by damped Newton.
 
@@ -226,6 +234,9 @@ def newton_solve(
         one more pass there (a point about decrement^2 from the optimum).
         False returns the point where the test passed, as it is: for a
         start that is already polished (the metric phase).
+    start : tuple, optional
+        ``problem.derivatives(phi0)``'s result, when the caller has it: the
+        first pass is then not made.
 
     Returns
     -------
@@ -233,7 +244,9 @@ def newton_solve(
     """
     lik = problem.likelihood
     phi = np.array(phi0, dtype=np.float64)
-    E, g, H, loss, eta = problem.derivatives(phi, eta0)
+    if start is None:
+        start = problem.derivatives(phi, eta0)
+    E, g, H, loss, eta = start
     converged = False
     n_iter = 0
     for n_iter in range(1, max_iter + 1):  # noqa: B007 - n_iter is reported
@@ -321,7 +334,10 @@ def _metric_phase(problem, phi, chol, *, max_iter, tol, armijo=1e-4):
     decrease (for convex E, E(phi + delta) <= E(phi) + g(phi + delta)^T
     delta). The phase ends, leaving the rest to exact Newton, at the first
     step that fails, when the decrement stops shrinking by ``_METRIC_SLOW``
-    a step, or when half the decrement is below ``tol``.
+    a step, or when half the decrement is below ``tol``. When the observed
+    contraction predicts that the next step will end the phase, its trial
+    pass is a complete one: its Hessian is then the exact one at the
+    returned point, and the separate pass for it is saved.
 
     Parameters
     ----------
@@ -340,8 +356,11 @@ def _metric_phase(problem, phi, chol, *, max_iter, tol, armijo=1e-4):
         The linear predictor at ``phi`` (None for out-of-core designs).
     n_iter : int
         Passes made (accepted and rejected steps).
+    last : tuple or None
+        ``problem.derivatives(phi)`` when the last pass was a complete one.
     """
     E, g, _, eta = problem.value_grad(phi)
+    last = None
     pairs = []  # (s, y, 1 / y^T s), oldest first
     previous = np.inf
     n_iter = 0
@@ -363,9 +382,16 @@ def _metric_phase(problem, phi, chol, *, max_iter, tol, armijo=1e-4):
             break
         n_iter += 1
         phi_try = phi + delta
-        E_try, g_try, _, eta_try = problem.value_grad(phi_try)
+        # The next decrement, if the contraction holds, is decrement^2 / previous.
+        complete = np.isfinite(previous) and decrement * decrement / previous / 2.0 <= tol
+        if complete:
+            last = problem.derivatives(phi_try)
+            E_try, g_try, _, _, eta_try = last
+        else:
+            E_try, g_try, _, eta_try = problem.value_grad(phi_try)
         proven = float(np.dot(g_try, delta)) <= -armijo * decrement
         if not (np.isfinite(E_try) and (E_try <= E - armijo * decrement or proven)):
+            last = None
             break
         y_step = g_try - g
         curvature = float(np.dot(y_step, delta))
@@ -374,7 +400,10 @@ def _metric_phase(problem, phi, chol, *, max_iter, tol, armijo=1e-4):
             del pairs[:-_METRIC_MEMORY]
         phi, E, g, eta = phi_try, E_try, g_try, eta_try
         previous = decrement
-    return phi, eta, n_iter
+        if complete:
+            # The exact test at phi follows in newton_solve, with this Hessian.
+            break
+    return phi, eta, n_iter, last
 
 
 def solve_map(problem, phi0=None, *, max_iter=100, tol=1e-8, warn=True):
@@ -424,7 +453,7 @@ def solve_map(problem, phi0=None, *, max_iter=100, tol=1e-8, warn=True):
     if metric is None:
         result = newton_solve(problem, phi0, max_iter=max_iter, tol=tol)
     else:
-        phi1, eta1, spent = _metric_phase(
+        phi1, eta1, spent, last = _metric_phase(
             problem,
             np.array(phi0, dtype=np.float64),
             metric,
@@ -438,6 +467,7 @@ def solve_map(problem, phi0=None, *, max_iter=100, tol=1e-8, warn=True):
             tol=tol,
             eta0=eta1,
             final_step=False,
+            start=last,
         )
         result.n_iter += spent
     if warn and not result.converged:

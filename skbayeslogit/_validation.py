@@ -342,11 +342,17 @@ def encode_labels(y):
         lo, hi = int(yi.min()), int(yi.max())
         span = hi - lo + 1
         if span <= min(_DENSE_CODE_RANGE, 2 * y.size):
-            offset = (yi - lo).astype(np.intp, copy=False)
+            offset = yi - lo  # a new int64 array: the codes never alias y
+            if offset.dtype != np.int64:
+                offset = offset.astype(np.int64)
             present = np.flatnonzero(np.bincount(offset, minlength=span))
+            classes = (present + lo).astype(y.dtype)
+            if len(present) == span:
+                # Every value in [lo, hi] occurs (labels 0 .. K-1, say): the
+                # offsets are the codes.
+                return classes, offset
             table = np.full(span, -1, dtype=np.int64)
             table[present] = np.arange(len(present))
-            classes = (present + lo).astype(y.dtype)
             return classes, table[offset]
     classes, codes = np.unique(y, return_inverse=True)
     return classes, codes.astype(np.int64).reshape(-1)
