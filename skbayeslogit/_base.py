@@ -393,14 +393,14 @@ class GaussianPosteriorClassifier(LinearClassifierBase):
                 scale = self._prior_scale
                 result, log_ev = fit_at(scale)
 
-        self.prior_scale_ = scale
-        self.log_evidence_ = log_ev
-        self.n_iter_ = result.n_iter
-        self._set_coef(design, result.theta)
-        self._posterior = GaussianPosterior(result.theta, result.chol, free_map)
-        self.posterior_mean_ = result.theta.copy()
-        self.posterior_cov_ = self._posterior.cov
-        self._check_identification(design, likelihood, y_fit, w, result, X)
+            self.prior_scale_ = scale
+            self.log_evidence_ = log_ev
+            self.n_iter_ = result.n_iter
+            self._set_coef(design, result.theta)
+            self._posterior = GaussianPosterior(result.theta, result.chol, free_map)
+            self.posterior_mean_ = result.theta.copy()
+            self.posterior_cov_ = self._posterior.cov
+            self._check_identification(design, likelihood, y_fit, w, result, X)
         return self
 
     def _free_map(self, design):

@@ -48,7 +48,7 @@ from sklearn.exceptions import ConvergenceWarning
 
 from ._design import LinearDesign
 
-_METRIC_MIN_ROWS = 10_000  # subsample rows at least ...
+_METRIC_MIN_ROWS = 2_500  # subsample rows at least ...
 _METRIC_ROWS_PER_PARAM = 20  # ... and this many per parameter (Hessian error ~ sqrt(p / m))
 _METRIC_MIN_RATIO = 4  # the subsample is used only when n >= 4 m
 _METRIC_TOL_FACTOR = 0.5  # margin for the metric's error in the decrement (sqrt(p / m))

@@ -146,5 +146,6 @@ class GaussianPosterior:
                 if chunk is not None:
                     chunk(mean[start:stop], var[start:stop], start, stop)
 
-        _map_tasks(task, [(a, min(a + span, n)) for a in range(0, n, span)])
+        tasks = [(a, min(a + span, n)) for a in range(0, n, span)]
+        _map_tasks(task, tasks, work=2.0 * n * d * (p + 1))
         return mean, var

@@ -205,7 +205,7 @@ def _overall_range(X):
     block = _RANGE_BLOCK_BYTES // 8
     span = block * _RANGE_TASK_BLOCKS
     tasks = [(flat, a, min(a + span, flat.size), block) for a in range(0, flat.size, span)]
-    parts = _map_tasks(_flat_span_range, tasks)
+    parts = _map_tasks(_flat_span_range, tasks, work=2.0 * flat.size)
     lo = np.array([part[0] for part in parts])
     hi = np.array([part[1] for part in parts])
     return lo.min(), hi.max()
@@ -229,7 +229,7 @@ def _column_range(X):
     block = max(r, (_RANGE_BLOCK_BYTES // (8 * max(d, 1))) // r * r)
     span = block * _RANGE_TASK_BLOCKS
     tasks = [(X, a, min(a + span, n), r, block) for a in range(0, n, span)]
-    return _map_tasks(_span_range, tasks, fold=_fold_range)
+    return _map_tasks(_span_range, tasks, fold=_fold_range, work=2.0 * X.size)
 
 
 def _check_magnitude(X, per_column=True):
