@@ -623,9 +623,9 @@ class GaussianPosteriorClassifier(LinearClassifierBase):
         """Predictive class probabilities, shape (n_samples, n_classes); rows sum to 1.
 
         Binary models with a Gaussian-moment predictive finish each chunk's
-        probabilities on the worker that computed its latent moments, in
-        one cache-resident pass over X; the values are those of the generic
-        path, ``expit(decision_function(X))``.
+        probabilities as soon as its latent moments are computed, in one pass
+        over X; the values are those of the generic path,
+        ``expit(decision_function(X))``.
         """
         check_is_fitted(self, "coef_")
         if self.coef_.shape[0] != 1 or self.predictive == "mc":
