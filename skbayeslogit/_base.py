@@ -196,7 +196,10 @@ class LinearClassifierBase(ClassifierMixin, BaseEstimator):
         return P / P.sum(axis=1, keepdims=True)
 
 
-def _binary_separation(X, y, w, fit_intercept):
+_SEPARATION_SUBSET_ROWS = 2_000  # rows of the first, small linear program
+
+
+def _binary_separation(X, y, w, fit_intercept, margin=None):
     """True when some direction v separates the classes (weakly).
 
     The maximum-likelihood estimate of a binary GLM with a monotone link
@@ -207,6 +210,13 @@ def _binary_separation(X, y, w, fit_intercept):
     such a v when its optimum is positive (Konis, "Linear programming
     algorithms for detecting separated data in binary logistic regression
     models", DPhil thesis, Oxford, 2007).
+
+    On large data the linear program over all rows is slow (6 s at
+    n = 1e5, d = 50). A subset of rows settles most cases first: if the
+    rows with the smallest fitted margins ``margin`` (s_i eta_i, shape (n,))
+    admit no such v and have full column rank, then no v != 0 has
+    s_i x_i^T v >= 0 even on them, so none does on all rows. Only when the
+    subset is separable (or rank deficient) is the full program solved.
     """
     from scipy.optimize import linprog
 
@@ -217,8 +227,19 @@ def _binary_separation(X, y, w, fit_intercept):
     scale = np.max(np.abs(A), axis=0)
     A = A / np.where(scale > 0, scale, 1.0)
     S = A * np.where(y[keep] > 0.5, 1.0, -1.0)[:, None]
-    res = linprog(-S.sum(axis=0), A_ub=-S, b_ub=np.zeros(len(S)), bounds=(-1, 1), method="highs")
-    return bool(res.status == 0 and -res.fun > 1e-7 * len(S))
+
+    def separable(rows):
+        res = linprog(
+            -rows.sum(axis=0), A_ub=-rows, b_ub=np.zeros(len(rows)), bounds=(-1, 1), method="highs"
+        )
+        return bool(res.status == 0 and -res.fun > 1e-7 * len(rows))
+
+    if margin is not None and len(S) > 2 * _SEPARATION_SUBSET_ROWS:
+        closest = np.argpartition(margin[keep], _SEPARATION_SUBSET_ROWS)[:_SEPARATION_SUBSET_ROWS]
+        subset = S[closest]
+        if np.linalg.matrix_rank(subset) == S.shape[1] and not separable(subset):
+            return False
+    return separable(S)
 
 
 def _perfect_margin(likelihood, tail):
@@ -527,7 +548,9 @@ class GaussianPosteriorClassifier(LinearClassifierBase):
         perfect = int(np.sum(perfect_rows & (w > 0)))
         if perfect == 0:
             return
-        confirmed = design.q == 1 and _binary_separation(X, y, w, design.fit_intercept)
+        confirmed = design.q == 1 and _binary_separation(
+            X, y, w, design.fit_intercept, margin if design.q == 1 else None
+        )
         if design.q > 1 or confirmed:
             kind = "complete or quasi-complete separation" if confirmed else "likely separation"
             warnings.warn(

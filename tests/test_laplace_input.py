@@ -207,3 +207,40 @@ def test_label_encoding_equals_numpy_unique(y):
     assert classes.dtype == ref_classes.dtype and codes.dtype == np.int64
     np.testing.assert_array_equal(classes, ref_classes)
     np.testing.assert_array_equal(codes, ref_codes)
+
+
+def test_separation_check_on_large_data_uses_a_subset_soundly(monkeypatch):
+    """Above 4,000 rows the linear program first runs on the 2,000 rows with
+    the smallest margins. A confident but identified fit (rows fitted with
+    probability 1 - 1e-12, no separation) must not warn; quasi-complete
+    separation hidden among the confident rows (a tied pair at x = 0 decides
+    it, Albert & Anderson 1984) must still warn, via the full program."""
+    import scipy.optimize
+
+    from skbayeslogit import ProbitClassifier
+
+    calls = []  # rows of each linear program solved
+    plain = scipy.optimize.linprog
+
+    def counted(c, A_ub=None, **kwargs):
+        calls.append(len(A_ub))
+        return plain(c, A_ub=A_ub, **kwargs)
+
+    monkeypatch.setattr(scipy.optimize, "linprog", counted)
+    rng = np.random.default_rng(4)
+    n = 20_000
+    X = rng.normal(size=(n, 2)) * [4.0, 1.0]
+    y = (X[:, 0] + rng.normal(size=n) > 0).astype(int)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        ProbitClassifier(prior_scale=None).fit(X, y)
+    assert calls == [2_000]  # confident rows exist; the subset settled it
+    calls.clear()
+
+    # Class 1 exactly when x > 0, both labels at x = 0: no overlap elsewhere.
+    x = np.r_[-rng.uniform(0.1, 3, n // 2), 0.0, 0.0, rng.uniform(0.1, 3, n // 2)]
+    y = np.r_[np.zeros(n // 2), 0, 1, np.ones(n // 2)].astype(int)
+    Xs = np.column_stack([x, rng.normal(size=len(x))])
+    with pytest.warns(SeparationWarning, match="complete or quasi-complete"):
+        ProbitClassifier(prior_scale=None).fit(Xs, y)
+    assert calls == [2_000, n + 2]  # the subset is separable: the full program decides
