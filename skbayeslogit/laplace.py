@@ -69,6 +69,9 @@ class LaplaceLogisticClassifier(GaussianPosteriorClassifier):
     prior_scale_ : float or None
         The prior scale used (the maximiser when "auto").
     n_iter_ : int
+        Passes over all the rows by the solver (Newton iterations; on large
+        data also the loss-and-gradient passes of the subsample-metric
+        phase), for the chosen prior scale.
     n_features_in_ : int
     feature_names_in_ : ndarray of str, when X had string column names.
 
