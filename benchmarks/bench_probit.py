@@ -87,7 +87,7 @@ def bench_one(n, seed=0):
         "peak_mem_mb": None,
         "notes": (
             f"|dcoef| {dcoef:.1e}, max rel dSE {dse:.1e}; n_iter ours {model.n_iter_} "
-            f"(full data, after a subsample warm start when n >= 2e5), "
+            f"(full-data passes; subsample start and metric phase on large n), "
             f"statsmodels {n_ref}; {repeats} rounds"
         ),
     }
