@@ -92,16 +92,61 @@ def _normaliser_brentq(a, t):
     return brentq(f, m, hi * (1 + 1e-12) + 1e-12, xtol=1e-14, rtol=8.9e-16, maxiter=500)
 
 
-@pytest.mark.parametrize("t", [0.1, 0.5, 0.99, 1.01, 1.2, 2.0, 5.0])
+@pytest.mark.parametrize("t", [0.1, 0.5, 0.8, 0.99, 1.01, 1.2, 1.5, 2.0, 5.0])
 def test_normaliser_matches_brentq(t):
     rng = _rng(1)
     for k in (2, 7, 300):
         for scale in (1e-2, 1.0, 1e3):
+            # Single rows; rows solved in blocks are checked against these
+            # bitwise (test_row_blocks_match_single_rows_bitwise).
             a = rng.normal(scale=scale, size=(3, k))
             lam = tempered_normaliser(a, t)
             ref = np.array([_normaliser_brentq(row, t) for row in a])
             # brentq's own tolerance is 1e-14 + 8.9e-16 |lam|.
             np.testing.assert_allclose(lam, ref, rtol=4e-15, atol=2e-14, err_msg=f"K={k}")
+
+
+@pytest.mark.parametrize("t", [0.0, 0.5, 0.8, 1.2, 1.5, 2.0, 1.3])
+@pytest.mark.parametrize("k", [2, 3, 10, 50])
+def test_row_blocks_match_single_rows_bitwise(t, k):
+    # Rows are solved 16 at a time with the loops over rows vectorised; each
+    # row must still get exactly what the one-row solver gives it (the
+    # serial/parallel equality of the kernels rests on this).  37 rows: two
+    # blocks and five single rows; rows of very different spread share a
+    # block, so lanes stop at different iterations.
+    rng = _rng(21)
+    a = rng.normal(size=(37, k)) * np.geomspace(1e-3, 1e3, 37)[:, None]
+    y = rng.integers(0, k, size=37)
+    lam = tempered_normaliser(a, t)
+    p = tempered_softmax(a, t)
+    loss, grad = bitempered_loss(a, y, 0.8, t)
+    for i in range(37):
+        assert lam[i] == tempered_normaliser(a[i], t), i
+        np.testing.assert_array_equal(p[i], tempered_softmax(a[i], t))
+        loss_i, grad_i = bitempered_loss(a[i], y[i], 0.8, t)
+        assert loss[i] == loss_i, i
+        np.testing.assert_array_equal(grad[i], grad_i)
+
+
+@pytest.mark.parametrize("t2", [0.8, 1.2, 1.3])
+def test_warm_started_normalisers_match_cold(t2):
+    # Starting Newton from the previous evaluation's normalisers (as a fit
+    # does) changes the result by no more than the solver's tolerance, from
+    # near starts (a small step in the activations) and from far ones (a
+    # different scale: starts on both sides of the root, clipped ones).
+    rng = _rng(22)
+    n, k = 203, 10
+    y = rng.integers(0, k, size=n)
+    memory = tk.NormaliserMemory()
+    base = rng.normal(size=(n, k))
+    for a in (3.0 * base, 3.0003 * base, 300.0 * base, 0.01 * base, 3.0 * base):
+        loss, grad = tk.bitempered_loss_warm(a, y, 0.7, t2, 0.0, memory)
+        cold_loss, cold_grad = bitempered_loss(a, y, 0.7, t2)
+        np.testing.assert_allclose(loss, cold_loss, rtol=1e-13, atol=1e-15)
+        np.testing.assert_allclose(grad, cold_grad, rtol=1e-12, atol=1e-14)
+        np.testing.assert_allclose(memory.values(n), tempered_normaliser(a, t2), rtol=1e-14)
+    with pytest.raises(ValueError, match="2-D"):
+        tk.bitempered_loss_warm(a[0], y[0], 0.7, t2, 0.0, memory)
 
 
 def _sparsemax(z):
@@ -415,22 +460,31 @@ def _workload():
     return a, y
 
 
-def test_concurrent_calls_match_serial():
+@pytest.mark.parametrize(("t2", "family"), [(1.3, "general"), (1.2, "blocked")])
+def test_concurrent_calls_match_serial(t2, family):
     a, y = _workload()
-    expected_p = tempered_softmax(a, 1.3)
-    expected_loss, expected_grad = bitempered_loss(a, y, 0.7, 1.3)
-    # The serial build gives identical results (no cross-row reductions).
+    assert tk._kernel_family(a.shape[1], t2) == family
+    expected_p = tempered_softmax(a, t2)
+    expected_loss, expected_grad = bitempered_loss(a, y, 0.7, t2)
+    # The serial builds give identical results (no cross-row reductions).
     p_serial = np.empty_like(a)
-    tk._normalise_serial(a, 1.3, p_serial, np.empty(a.shape[0]), True)
+    tk._NORMALISE_KERNELS[family][0](a, t2, p_serial, np.empty(a.shape[0]), True, 1)
     np.testing.assert_array_equal(p_serial, expected_p)
+    loss_serial, grad_serial = np.empty(a.shape[0]), np.empty_like(a)
+    tk._LOSS_KERNELS[family][0](
+        a, y, np.empty((1, a.shape[1])), True, 0.7, t2, 0.0, False,
+        np.empty(a.shape[0]), loss_serial, grad_serial, 1,
+    )  # fmt: skip
+    np.testing.assert_array_equal(loss_serial, expected_loss)
+    np.testing.assert_array_equal(grad_serial, expected_grad)
 
     failures = []
 
     def work():
         try:
             for _ in range(3):
-                np.testing.assert_array_equal(tempered_softmax(a, 1.3), expected_p)
-                loss, grad = bitempered_loss(a, y, 0.7, 1.3)
+                np.testing.assert_array_equal(tempered_softmax(a, t2), expected_p)
+                loss, grad = bitempered_loss(a, y, 0.7, t2)
                 np.testing.assert_array_equal(loss, expected_loss)
                 np.testing.assert_array_equal(grad, expected_grad)
         except Exception as exc:  # noqa: BLE001 - reported below
@@ -497,11 +551,12 @@ def test_import_without_writable_cache_and_lazy_compilation():
     # root) can create: numba finds no cache location at all.
     code = """
         import skbayeslogit._tempered as tk
-        assert tk._normalise_serial.signatures == [], "compiled at import"
-        assert type(tk._normalise_serial._cache).__name__ == "NullCache"
-        p = tk.tempered_softmax([[0.0, 1.0, 2.0]], 1.2)
+        kernel = tk._normalise_general_serial
+        assert kernel.signatures == [], "compiled at import"
+        assert type(kernel._cache).__name__ == "NullCache"
+        p = tk.tempered_softmax([[0.0, 1.0, 2.0]], 1.3)
         assert abs(p.sum() - 1) < 1e-14
-        assert len(tk._normalise_serial.signatures) == 1
+        assert len(kernel.signatures) == 1
         print("ok")
     """
     res = _run_python(
@@ -517,7 +572,10 @@ def test_import_without_writable_cache_and_lazy_compilation():
 
 def test_few_compiled_signatures():
     # Every call above converted its inputs to the same dtypes and layout.
-    for kernel in (tk._normalise_serial, tk._loss_serial, tk._binary_serial):
+    kernels = [tk._binary_serial]
+    for family in ("general", "blocked"):
+        kernels += [tk._NORMALISE_KERNELS[family][0], tk._LOSS_KERNELS[family][0]]
+    for kernel in kernels:
         assert len(kernel.signatures) <= 1, kernel.signatures
 
 
