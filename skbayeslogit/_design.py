@@ -206,6 +206,10 @@ class LinearDesign:
         Parameters
         ----------
         likelihood : object with ``loss_grad(y, eta, w)``
+            Optional attributes: ``work_per_row`` (flops a row of the
+            likelihood costs, to decide whether the pass is threaded) and
+            ``wants_rows`` (then it is called as ``loss_grad(y, eta, w,
+            rows=(start, stop))`` with the span's row range).
         y, w : ndarray of shape (n,)
         theta : ndarray of shape (p_full,)
 
@@ -223,7 +227,8 @@ class LinearDesign:
             (likelihood, y, w, W, b, eta, start, min(start + span, self.n), rows)
             for start in range(0, self.n, span)
         ]
-        parts = _map_tasks(self._gradient_task, tasks, work=4.0 * self.n * self.p_full)
+        work = self.n * (4.0 * self.p_full + getattr(likelihood, "work_per_row", 0.0))
+        parts = _map_tasks(self._gradient_task, tasks, work=work)
         loss = 0.0
         gW = np.zeros((self.q, self.d))
         gb = np.zeros(self.q)
@@ -239,6 +244,7 @@ class LinearDesign:
     def _gradient_task(self, likelihood, y, w, W, b, eta, first, last, rows):
         """Loss, coefficient gradient (q, d) and intercept gradient (q,) of rows [first, last)."""
         binary = self.q == 1
+        wants_rows = getattr(likelihood, "wants_rows", False)
         gW = np.zeros((self.q, self.d))
         gb = np.zeros(self.q)
         loss = 0.0
@@ -252,7 +258,10 @@ class LinearDesign:
                 np.matmul(Xb, W.T, out=eb)
             if self.fit_intercept:
                 eb += b if not binary else b[0]
-            lb, g = likelihood.loss_grad(y[start:stop], eb, w[start:stop])
+            if wants_rows:
+                lb, g = likelihood.loss_grad(y[start:stop], eb, w[start:stop], rows=(start, stop))
+            else:
+                lb, g = likelihood.loss_grad(y[start:stop], eb, w[start:stop])
             loss += lb
             if binary:
                 gW[0] += Xb.T @ g

@@ -28,7 +28,10 @@ Threading
       forked after its thread pool was started.  A fork hook records whether
       that happened, and such a child runs serial kernels only;
     * small inputs never pay for a parallel launch: below
-      :data:`PARALLEL_MIN_ELEMENTS` work items the serial build is used.
+      :data:`PARALLEL_MIN_ELEMENTS` work items the serial build is used;
+    * a pass that already runs row spans on worker threads (the tempered
+      fit's gradient pass) wraps each span in :func:`serial_kernels`, so
+      numba's threads do not compete with the workers for the same cores.
 
     Serial and parallel builds run the same per-row code and there is no
     reduction across rows, so both give bitwise identical results.
@@ -40,12 +43,13 @@ Flags
 
 from __future__ import annotations
 
+import contextlib
 import os
 import threading
 
 import numba
 
-__all__ = ["jit", "launch", "PARALLEL_MIN_ELEMENTS"]
+__all__ = ["jit", "launch", "serial_kernels", "PARALLEL_MIN_ELEMENTS"]
 
 #: Number of (row x class) work items from which a parallel launch is used.
 #: Measured on the benchmark workloads: below this the thread wake-up costs
@@ -54,6 +58,23 @@ PARALLEL_MIN_ELEMENTS = 1 << 15
 
 _launch_lock = threading.Lock()
 _parallel_forbidden = False
+_thread_state = threading.local()
+
+
+@contextlib.contextmanager
+def serial_kernels():
+    """Within the block, kernels launched from this thread run serially.
+
+    For passes that already spread row spans over worker threads: a parallel
+    kernel inside a worker would put numba's threads on the same cores.
+    Nested use is allowed; the setting is per thread.
+    """
+    previous = getattr(_thread_state, "serial", False)
+    _thread_state.serial = True
+    try:
+        yield
+    finally:
+        _thread_state.serial = previous
 
 
 def _reset_after_fork() -> None:
@@ -117,7 +138,12 @@ def launch(serial, parallel, work: int, *args):
     result
         Whatever the kernel returns.
     """
-    if work >= PARALLEL_MIN_ELEMENTS and not _parallel_forbidden and numba.get_num_threads() > 1:
+    if (
+        work >= PARALLEL_MIN_ELEMENTS
+        and not _parallel_forbidden
+        and not getattr(_thread_state, "serial", False)
+        and numba.get_num_threads() > 1
+    ):
         lock = _launch_lock
         if lock.acquire(blocking=False):
             try:

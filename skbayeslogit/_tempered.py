@@ -51,7 +51,7 @@ result does not depend on its neighbours.  For the loss, when also
 rational functions of ``1 + (1 - t2)(d_i - lambda_hat)`` and are
 vectorised the same way; the labelled class uses the general formula.
 Other temperatures solve row by row.  A fit passes each row's normaliser
-from one objective evaluation to the next (:class:`NormaliserMemory`):
+from one objective evaluation to the next (:func:`bitempered_loss_warm`):
 Newton on the convex ``log_t(sum p)`` lands at or left of the root from any
 start, and from a nearby one it needs about half the passes.
 
@@ -92,7 +92,6 @@ __all__ = [
     "bitempered_loss",
     "bitempered_loss_binary",
     "bitempered_loss_warm",
-    "NormaliserMemory",
 ]
 
 _EPS = float(np.finfo(np.float64).eps)
@@ -1295,19 +1294,18 @@ def bitempered_loss(activations, labels, t1, t2, label_smoothing=0.0):
         wrong shape, or a temperature / smoothing outside its range.
     """
     a, one_row = _as_activations(activations)
-    loss, grad = _multiclass_loss(a, labels, one_row, t1, t2, label_smoothing, None)
+    loss, grad = _multiclass_loss(a, labels, one_row, t1, t2, label_smoothing, None, False)
     if one_row:
         return float(loss[0]), grad[0]
     return loss, grad
 
 
-def _multiclass_loss(a, labels, one_row, t1, t2, label_smoothing, normaliser):
+def _multiclass_loss(a, labels, one_row, t1, t2, label_smoothing, normalisers, warm):
     """Validate the rest and run the loss kernel on activations `a` (n, K).
 
-    `normaliser`: None, or an (n,) float64 C-contiguous array of absolute
-    normalisers.  When given, the kernel starts each row's Newton iteration
-    there if the array is marked valid (see :class:`NormaliserMemory`) and
-    writes the new normalisers back.
+    `normalisers`: None, or an (n,) float64 C-contiguous writeable array of
+    absolute normalisers, read as Newton's starting points when `warm` and
+    overwritten with the new ones.
     """
     n, k = a.shape
     t1 = _check_scalar("t1", t1, 0.0, 1.0)
@@ -1319,12 +1317,9 @@ def _multiclass_loss(a, labels, one_row, t1, t2, label_smoothing, normaliser):
         yprob = np.empty((1, k))
     else:
         idx = np.zeros(1, dtype=np.int64)
-    if normaliser is None:
+    if normalisers is None:
         warm = False
-        lam_io = np.empty(n)
-    else:
-        warm = normaliser.valid
-        lam_io = normaliser.values(n)
+        normalisers = np.empty(n)
     loss = np.empty(n)
     grad = np.empty_like(a)
     launch(
@@ -1337,49 +1332,33 @@ def _multiclass_loss(a, labels, one_row, t1, t2, label_smoothing, normaliser):
         t1,
         t2,
         ls,
-        warm,
-        lam_io,
+        bool(warm),
+        normalisers,
         loss,
         grad,
         _n_chunks(n),
     )
-    if normaliser is not None:
-        normaliser.valid = True
     return loss, grad
 
 
-class NormaliserMemory:
-    """The normalisers of one evaluation, kept to start the next one from.
-
-    An optimiser evaluates the loss at a sequence of nearby parameters; the
-    tempered-softmax normaliser of each row moves little between them, and
-    Newton started at the previous value needs about half the passes of a
-    cold start (and no fixed-point phase).  The converged normaliser does
-    not depend on the start beyond the solver's stopping tolerance.
-    """
-
-    def __init__(self):
-        self.valid = False
-        self._values = None
-
-    def values(self, n):
-        """Return the (n,) array to read and overwrite; resets if n changed."""
-        if self._values is None or self._values.shape[0] != n:
-            self._values = np.empty(n)
-            self.valid = False
-        return self._values
-
-
-def bitempered_loss_warm(activations, labels, t1, t2, label_smoothing, memory):
+def bitempered_loss_warm(activations, labels, t1, t2, label_smoothing, normalisers, warm):
     """:func:`bitempered_loss` for 2-D activations, reusing normalisers.
+
+    An optimiser evaluates the loss at a sequence of nearby parameters; each
+    row's tempered-softmax normaliser moves little between them, and Newton
+    started at the previous value needs about half the passes of a cold
+    start (and no fixed-point phase).  The result differs from a cold start
+    by no more than the solver's stopping tolerance.
 
     Parameters
     ----------
     activations, labels, t1, t2, label_smoothing
         As :func:`bitempered_loss`; `activations` must be 2-D (n, K).
-    memory : NormaliserMemory
-        Normalisers of the previous call on activations of the same shape;
-        updated in place.
+    normalisers : ndarray of float64, shape (n,), C-contiguous, writeable
+        Absolute normalisers of a previous call on nearby activations (read
+        only when `warm`); overwritten with this call's.
+    warm : bool
+        Whether `normalisers` holds starting points.
 
     Returns
     -------
@@ -1389,7 +1368,18 @@ def bitempered_loss_warm(activations, labels, t1, t2, label_smoothing, memory):
     a, one_row = _as_activations(activations)
     if one_row:
         raise ValueError("bitempered_loss_warm needs 2-D activations (n, K)")
-    return _multiclass_loss(a, labels, False, t1, t2, label_smoothing, memory)
+    lam = normalisers
+    if not (
+        isinstance(lam, np.ndarray)
+        and lam.dtype == np.float64
+        and lam.shape == (a.shape[0],)
+        and lam.flags.c_contiguous
+        and lam.flags.writeable
+    ):
+        raise ValueError(
+            f"normalisers must be a writeable C-contiguous float64 array of shape ({a.shape[0]},)"
+        )
+    return _multiclass_loss(a, labels, False, t1, t2, label_smoothing, lam, warm)
 
 
 def bitempered_loss_binary(activations, labels, t1, t2, label_smoothing=0.0):

@@ -23,9 +23,11 @@ point sums, and that was measured:
 
 The tempered case with 24,000 rows and three classes crosses the size at
 which the numba kernels switch to their parallel builds
-(PARALLEL_MIN_ELEMENTS), so threads launching numba's parallel kernels
-concurrently are exercised too (the launch lock must serialise them; the
-workqueue layer aborts the process otherwise).
+(PARALLEL_MIN_ELEMENTS) in the scoring's predict_proba, so threads
+launching numba's parallel kernels concurrently are exercised too (the
+launch lock must serialise them; the workqueue layer aborts the process
+otherwise). The fits themselves run the loss kernels' serial builds on the
+gradient pass's worker threads, from several joblib threads at once.
 """
 
 import numpy as np
@@ -82,7 +84,8 @@ def serial():
 
 def test_the_large_case_uses_the_parallel_kernels():
     _, _, n, k = CASES["tempered-large"]
-    # Half of the rows per fold, K activations per row.
+    # Half of the rows per fold, K activations per row: the held-out fold's
+    # predict_proba.
     assert (n // 2) * k >= PARALLEL_MIN_ELEMENTS
 
 

@@ -137,16 +137,18 @@ def test_warm_started_normalisers_match_cold(t2):
     rng = _rng(22)
     n, k = 203, 10
     y = rng.integers(0, k, size=n)
-    memory = tk.NormaliserMemory()
+    lam = np.empty(n)
     base = rng.normal(size=(n, k))
-    for a in (3.0 * base, 3.0003 * base, 300.0 * base, 0.01 * base, 3.0 * base):
-        loss, grad = tk.bitempered_loss_warm(a, y, 0.7, t2, 0.0, memory)
+    for step, a in enumerate((3.0 * base, 3.0003 * base, 300.0 * base, 0.01 * base, 3.0 * base)):
+        loss, grad = tk.bitempered_loss_warm(a, y, 0.7, t2, 0.0, lam, step > 0)
         cold_loss, cold_grad = bitempered_loss(a, y, 0.7, t2)
         np.testing.assert_allclose(loss, cold_loss, rtol=1e-13, atol=1e-15)
         np.testing.assert_allclose(grad, cold_grad, rtol=1e-12, atol=1e-14)
-        np.testing.assert_allclose(memory.values(n), tempered_normaliser(a, t2), rtol=1e-14)
+        np.testing.assert_allclose(lam, tempered_normaliser(a, t2), rtol=1e-14)
     with pytest.raises(ValueError, match="2-D"):
-        tk.bitempered_loss_warm(a[0], y[0], 0.7, t2, 0.0, memory)
+        tk.bitempered_loss_warm(a[0], y[0], 0.7, t2, 0.0, lam, True)
+    with pytest.raises(ValueError, match="normalisers"):
+        tk.bitempered_loss_warm(a, y, 0.7, t2, 0.0, lam[::2], True)
 
 
 def _sparsemax(z):
@@ -616,3 +618,33 @@ def test_property_gradient_matches_central_differences(row, t1, t2, ls, c):
     lm = bitempered_loss(minus, np.full(k, c), t1, t2, ls)[0]
     # Central differences: truncation O(h^2) ~ 1e-12, rounding ~ eps/h ~ 1e-10.
     np.testing.assert_allclose(grad[0], (lp - lm) / (2 * h), atol=1e-8)
+
+
+def test_serial_kernels_context_keeps_large_calls_in_this_thread(monkeypatch):
+    # Inside serial_kernels() a call above the parallel threshold runs the
+    # serial build (a pass on worker threads must not start numba's threads
+    # on the same cores); outside it, the parallel build.
+    import numba
+
+    from skbayeslogit._numba_config import serial_kernels
+
+    if numba.get_num_threads() < 2:
+        pytest.skip("one numba thread: every launch is serial")
+    a, _ = _workload()
+    calls = []
+    serial, parallel = tk._NORMALISE_KERNELS["general"]
+
+    def spy(name, kernel):
+        def run(*args):
+            calls.append(name)
+            return kernel(*args)
+
+        return run
+
+    monkeypatch.setitem(
+        tk._NORMALISE_KERNELS, "general", (spy("serial", serial), spy("parallel", parallel))
+    )
+    expected = tempered_softmax(a, 1.3)
+    with serial_kernels():
+        np.testing.assert_array_equal(tempered_softmax(a, 1.3), expected)
+    assert calls == ["parallel", "serial"]
