@@ -23,6 +23,9 @@ from scipy.linalg.blas import dsyrk
 
 _BLOCK_BYTES = 1 << 20  # ~1 MiB of X per block: fits in L2 on current CPUs
 _TASK_BLOCKS = 8  # blocks per parallel task; results are summed in task order
+# Rows of packed outer products per GEMM in the multiclass Hessian pass:
+# ~1.3 MiB, which stays in L2 (128 rows at d = 50: the fastest measured).
+_OUTER_BYTES = 1 << 20 | 1 << 18
 _MAX_WORKERS = 4  # the per-block Python work holds the GIL: more do not pay
 
 _pool = None
@@ -306,12 +309,10 @@ class LinearDesign:
             (likelihood, y, w, W, b, eta, fill, start, min(start + span, self.n), rows)
             for start in range(0, self.n, span)
         ]
-        loss, grad, hess = _map_tasks(
-            self._multi_task, tasks, fold=_add_parts, work=float(self.n) * self.p_full**2
+        loss, grad, packed = _map_tasks(
+            self._multi_task, tasks, fold=_add_parts, work=float(self.n) * self.p_full**2 / 2
         )
-        # Only the upper triangle was accumulated.
-        hess = np.triu(hess) + np.triu(hess, 1).T
-        return loss, grad, hess, eta
+        return loss, grad, self._unpack_multi(packed), eta
 
     def _loss_grad_hess_binary(self, likelihood, y, w, theta, eta):
         """The q == 1 pass: one dsyrk per block gives the whole Hessian.
@@ -382,14 +383,30 @@ class LinearDesign:
         return loss, gx, gb, hess
 
     def _multi_task(self, likelihood, y, w, W, b, eta, fill, first, last, rows):
-        """Loss, gradient and upper Hessian of rows [first, last), q > 1."""
-        p = self.p_full
-        grad = np.zeros(p)
-        hess = np.zeros((p, p))
-        # One block-sized buffer for the K (K + 1) / 2 weighted copies of a
-        # block: a fresh 1 MiB temporary each time was 10% of the pass.
-        buf = np.empty((min(rows, last - first), self.d))
+        """Loss, gradient and packed Hessian sums of rows [first, last), q > 1.
+
+        The softmax Hessian is ``sum_i h_i (x) x_i x_i^T`` with ``h_i`` the
+        K x K matrix ``w_i (diag p_i - p_i p_i^T)`` and ``x_i`` the row with
+        a trailing 1 when there is an intercept.  Its distinct entries are
+        ``G[(k, l), (a, b)] = sum_i h_i[k, l] x_ia x_ib`` over k <= l and
+        a <= b: one GEMM of the rows' packed ``h`` (n x K(K+1)/2) with their
+        packed outer products (n x d(d+1)/2), per sub-block of rows that
+        stays in cache.  That is half the multiply-adds of a product per
+        class pair and a far better shape for BLAS than K(K+1)/2 products
+        with d x d outputs (measured at d = 10: 8x faster; d = 50: 1.7x).
+        Every entry is still a sum of products of exact factors, with no
+        difference of two large terms.  :meth:`_unpack_multi` expands G.
+        """
+        q, d = self.q, self.d
+        dx = d + 1 if self.fit_intercept else d
+        ku, lu = np.triu_indices(q)
+        packed = np.zeros((ku.size, dx * (dx + 1) // 2))
+        grad = np.zeros(self.p_full)
+        sub = max(16, _OUTER_BYTES // (8 * packed.shape[1]))
+        outer = np.empty((sub, packed.shape[1]))
+        xa = np.ones((sub, dx))
         loss = 0.0
+        nc = self.n_coef
         for start in range(first, last, rows):
             stop = min(start + rows, last)
             Xb = self.X[start:stop]
@@ -398,25 +415,37 @@ class LinearDesign:
                 eta[start:stop] += b
             lb, g, h = likelihood.derivatives(y[start:stop], eta[start:stop], w[start:stop])
             loss += lb
-            self._accumulate_multi(Xb, g, h, grad, hess, buf[: stop - start])
-        return loss, grad, hess
+            grad[:nc] += (g.T @ Xb).ravel()
+            if self.fit_intercept:
+                grad[nc:] += g.sum(axis=0)
+            hp = h[:, ku, lu]
+            for s0 in range(0, stop - start, sub):
+                m = min(sub, stop - start - s0)
+                xa[:m, :d] = Xb[s0 : s0 + m]
+                off = 0
+                for a in range(dx):
+                    np.multiply(xa[:m, a : a + 1], xa[:m, a:], out=outer[:m, off : off + dx - a])
+                    off += dx - a
+                packed += hp[s0 : s0 + m].T @ outer[:m]
+        return loss, grad, packed
 
-    def _accumulate_multi(self, Xb, g, h, grad, hess, buf):
-        d, q, nc = self.d, self.q, self.n_coef
-        grad[:nc] += (g.T @ Xb).ravel()
-        for k in range(q):
-            rk = slice(k * d, (k + 1) * d)
-            for l in range(k, q):
-                rl = slice(l * d, (l + 1) * d)
-                np.multiply(Xb, h[:, k, l][:, None], out=buf)
-                hess[rk, rl] += Xb.T @ buf
-        if self.fit_intercept:
-            grad[nc:] += g.sum(axis=0)
-            hkl = h.reshape(len(Xb), q * q)
-            cross = (Xb.T @ hkl).reshape(d, q, q)  # cross[:, k, l] = X^T h[:, k, l]
-            for k in range(q):
-                hess[k * d : (k + 1) * d, nc:] += cross[:, k, :]
-            hess[nc:, nc:] += h.sum(axis=0)
+    def _unpack_multi(self, packed):
+        """The full symmetric (p_full, p_full) Hessian from the packed sums."""
+        q, d, nc = self.q, self.d, self.n_coef
+        dx = d + 1 if self.fit_intercept else d
+        ku, lu = np.triu_indices(q)
+        au, bu = np.triu_indices(dx)
+        hess = np.empty((self.p_full, self.p_full))
+        block = np.empty((dx, dx))
+        # Parameter index of (class k, column a); column d is the intercept.
+        tail = [[nc + k] if self.fit_intercept else [] for k in range(q)]
+        index = [np.r_[k * d + np.arange(d), tail[k]].astype(np.intp) for k in range(q)]
+        for j, (k, l) in enumerate(zip(ku, lu, strict=True)):
+            block[au, bu] = packed[j]
+            block[bu, au] = packed[j]
+            hess[np.ix_(index[k], index[l])] = block
+            hess[np.ix_(index[l], index[k])] = block.T
+        return hess
 
 
 def _add_parts(acc, part):
