@@ -52,12 +52,18 @@ class _ColumnScaling:
         if getattr(design, "out_of_core", False):
             # The same weighted moments, merged from the validation pass.
             self.centre, spread = design.column_moments(centred=self.fit_intercept)
-        elif self.fit_intercept:
-            self.centre = np.average(X, axis=0, weights=w)
-            spread = np.sqrt(np.average((X - self.centre) ** 2, axis=0, weights=w))
         else:
-            self.centre = np.zeros(self.d)
-            spread = np.sqrt(np.average(X**2, axis=0, weights=w))
+            total = float(w.sum())
+            self.centre = (w @ X) / total if self.fit_intercept else np.zeros(self.d)
+            # Blocks of rows: no temporary the size of X (np.average made
+            # two, 35 ms at n = 1e5, d = 20).
+            square = np.zeros(self.d)
+            rows = max(1, (1 << 20) // (8 * max(self.d, 1)))
+            for start in range(0, X.shape[0], rows):
+                block = X[start : start + rows] - self.centre
+                np.square(block, out=block)
+                square += w[start : start + rows] @ block
+            spread = np.sqrt(square / total)
         self.spread = np.where(spread > 0, spread, 1.0)
 
     def _split(self, v):
