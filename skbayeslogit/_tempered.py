@@ -719,15 +719,23 @@ def _normalise_one(a, t, n, p, lam, want_p, r):
 # only the one it runs (each is several seconds of LLVM time).
 
 
-@numba.njit(nogil=True)
-def _normalise_rows_general(a, t, p, lam, want_p, start, stop):
+# Each family's serial kernel is its row-range function itself, and the
+# parallel kernel calls it on chunks: a wrapper layer would be one more
+# module for LLVM to optimise with everything inlined (seconds per kernel).
+# Both take (..., start, stop, n_chunks) so that launch() can hand them the
+# same arguments; the parallel one splits [start, stop) into n_chunks
+# chunks, the serial one ignores n_chunks.
+
+
+@jit()
+def _normalise_general_serial(a, t, p, lam, want_p, start, stop, n_chunks):
     n = _integer_power(t)
     for i in range(start, stop):
         _normalise_one(a, t, n, p, lam, want_p, i)
 
 
-@numba.njit(nogil=True)
-def _normalise_rows_blocked(a, t, p, lam, want_p, start, stop):
+@jit()
+def _normalise_blocked_serial(a, t, p, lam, want_p, start, stop, n_chunks):
     n = _integer_power(t)
     scratch = _block_scratch(a.shape[1])
     rows = np.empty(_BLOCK, dtype=np.int64)
@@ -742,29 +750,26 @@ def _normalise_rows_blocked(a, t, p, lam, want_p, start, stop):
                 _fill_probabilities(a[r + b], mb[b], lb[b], t, n, p[r + b])
 
 
-@jit()
-def _normalise_general_serial(a, t, p, lam, want_p, n_chunks):
-    _normalise_rows_general(a, t, p, lam, want_p, 0, a.shape[0])
+@numba.njit(nogil=True)
+def _chunk(start, stop, j, n_chunks):
+    # Bounds of chunk j of n_chunks over [start, stop).
+    n = stop - start
+    return start + j * n // n_chunks, start + (j + 1) * n // n_chunks
 
 
 @jit(parallel=True)
-def _normalise_general_parallel(a, t, p, lam, want_p, n_chunks):
-    n = a.shape[0]
+def _normalise_general_parallel(a, t, p, lam, want_p, start, stop, n_chunks):
     for j in numba.prange(n_chunks):
-        _normalise_rows_general(a, t, p, lam, want_p, j * n // n_chunks, (j + 1) * n // n_chunks)
-
-
-@jit()
-def _normalise_blocked_serial(a, t, p, lam, want_p, n_chunks):
-    _normalise_rows_blocked(a, t, p, lam, want_p, 0, a.shape[0])
+        lo, hi = _chunk(start, stop, j, n_chunks)
+        _normalise_general_serial(a, t, p, lam, want_p, lo, hi, 1)
 
 
 @jit(parallel=True)
-def _normalise_blocked_parallel(a, t, p, lam, want_p, n_chunks):
-    n = a.shape[0]
+def _normalise_blocked_parallel(a, t, p, lam, want_p, start, stop, n_chunks):
     # Chunks rather than rows: each allocates its block scratch once.
     for j in numba.prange(n_chunks):
-        _normalise_rows_blocked(a, t, p, lam, want_p, j * n // n_chunks, (j + 1) * n // n_chunks)
+        lo, hi = _chunk(start, stop, j, n_chunks)
+        _normalise_blocked_serial(a, t, p, lam, want_p, lo, hi, 1)
 
 
 @numba.njit(nogil=True)
@@ -822,8 +827,10 @@ def _block_unlabelled_terms(dsh, lam, labels, t2, n2, c, beta, vv, ww, total, s2
             ww[i, b] = w
 
 
-@numba.njit(nogil=True)
-def _loss_rows_general(a, idx, yprob, use_index, t1, t2, ls, warm, lam_io, loss, g, start, stop):
+@jit()
+def _loss_general_serial(
+    a, idx, yprob, use_index, t1, t2, ls, warm, lam_io, loss, g, start, stop, n_chunks
+):
     # lam_io: absolute normalisers, read as starting points when warm and
     # overwritten with this evaluation's.
     n2 = _integer_power(t2)
@@ -839,9 +846,11 @@ def _loss_rows_general(a, idx, yprob, use_index, t1, t2, ls, warm, lam_io, loss,
         lam_io[i] = m + lh
 
 
-@numba.njit(nogil=True)
-def _loss_rows_blocked(a, idx, yprob, use_index, t1, t2, ls, warm, lam_io, loss, g, start, stop):
-    # As _loss_rows_general, for the integer-power t2 of _use_blocks.
+@jit()
+def _loss_blocked_serial(
+    a, idx, yprob, use_index, t1, t2, ls, warm, lam_io, loss, g, start, stop, n_chunks
+):
+    # As _loss_general_serial, for the integer-power t2 of _use_blocks.
     k = a.shape[1]
     n2 = _integer_power(t2)
     w = np.empty(k)
@@ -888,65 +897,40 @@ def _loss_rows_blocked(a, idx, yprob, use_index, t1, t2, ls, warm, lam_io, loss,
             lam_io[i] = mb[b] + lb[b]
 
 
-@jit()
-def _loss_general_serial(a, idx, yprob, use_index, t1, t2, ls, warm, lam_io, loss, g, n_chunks):
-    _loss_rows_general(a, idx, yprob, use_index, t1, t2, ls, warm, lam_io, loss, g, 0, a.shape[0])
-
-
 @jit(parallel=True)
-def _loss_general_parallel(a, idx, yprob, use_index, t1, t2, ls, warm, lam_io, loss, g, n_chunks):
-    n = a.shape[0]
+def _loss_general_parallel(
+    a, idx, yprob, use_index, t1, t2, ls, warm, lam_io, loss, g, start, stop, n_chunks
+):
     # Chunks rather than rows so that the scratch arrays are allocated per
     # chunk.
     for j in numba.prange(n_chunks):
-        _loss_rows_general(
-            a,
-            idx,
-            yprob,
-            use_index,
-            t1,
-            t2,
-            ls,
-            warm,
-            lam_io,
-            loss,
-            g,
-            j * n // n_chunks,
-            (j + 1) * n // n_chunks,
+        lo, hi = _chunk(start, stop, j, n_chunks)
+        _loss_general_serial(
+            a, idx, yprob, use_index, t1, t2, ls, warm, lam_io, loss, g, lo, hi, 1
         )
 
 
-@jit()
-def _loss_blocked_serial(a, idx, yprob, use_index, t1, t2, ls, warm, lam_io, loss, g, n_chunks):
-    _loss_rows_blocked(a, idx, yprob, use_index, t1, t2, ls, warm, lam_io, loss, g, 0, a.shape[0])
-
-
 @jit(parallel=True)
-def _loss_blocked_parallel(a, idx, yprob, use_index, t1, t2, ls, warm, lam_io, loss, g, n_chunks):
-    n = a.shape[0]
+def _loss_blocked_parallel(
+    a, idx, yprob, use_index, t1, t2, ls, warm, lam_io, loss, g, start, stop, n_chunks
+):
     # Chunks rather than rows so that the scratch arrays are allocated per
     # chunk.
     for j in numba.prange(n_chunks):
-        _loss_rows_blocked(
-            a,
-            idx,
-            yprob,
-            use_index,
-            t1,
-            t2,
-            ls,
-            warm,
-            lam_io,
-            loss,
-            g,
-            j * n // n_chunks,
-            (j + 1) * n // n_chunks,
+        lo, hi = _chunk(start, stop, j, n_chunks)
+        _loss_blocked_serial(
+            a, idx, yprob, use_index, t1, t2, ls, warm, lam_io, loss, g, lo, hi, 1
         )
 
 
 def _kernel_family(k, t):
     """'blocked' when :func:`_use_blocks` holds for K classes at temperature t."""
     return "blocked" if _use_blocks.py_func(k, t, _integer_power.py_func(t)) else "general"
+
+
+def _n_chunks(n):
+    # Enough chunks to balance the threads, each at least one block long.
+    return max(1, min(n // _BLOCK, 8 * numba.get_num_threads()))
 
 
 _NORMALISE_KERNELS = {
@@ -957,11 +941,6 @@ _LOSS_KERNELS = {
     "general": (_loss_general_serial, _loss_general_parallel),
     "blocked": (_loss_blocked_serial, _loss_blocked_parallel),
 }
-
-
-def _n_chunks(n):
-    # Enough chunks to balance the threads, each at least one block long.
-    return max(1, min(n // _BLOCK, 8 * numba.get_num_threads()))
 
 
 @jit()
@@ -1174,6 +1153,8 @@ def tempered_normaliser(activations, t):
         dummy,
         lam,
         False,
+        0,
+        a.shape[0],
         _n_chunks(a.shape[0]),
     )
     return float(lam[0]) if one_row else lam
@@ -1219,6 +1200,8 @@ def tempered_softmax(activations, t):
         p,
         lam,
         True,
+        0,
+        a.shape[0],
         _n_chunks(a.shape[0]),
     )
     return p[0] if one_row else p
@@ -1339,6 +1322,8 @@ def _multiclass_loss(a, labels, one_row, t1, t2, label_smoothing, normalisers, w
         normalisers,
         loss,
         grad,
+        0,
+        n,
         _n_chunks(n),
     )
     return loss, grad

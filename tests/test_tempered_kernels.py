@@ -470,12 +470,12 @@ def test_concurrent_calls_match_serial(t2, family):
     expected_loss, expected_grad = bitempered_loss(a, y, 0.7, t2)
     # The serial builds give identical results (no cross-row reductions).
     p_serial = np.empty_like(a)
-    tk._NORMALISE_KERNELS[family][0](a, t2, p_serial, np.empty(a.shape[0]), True, 1)
+    tk._NORMALISE_KERNELS[family][0](a, t2, p_serial, np.empty(a.shape[0]), True, 0, len(a), 1)
     np.testing.assert_array_equal(p_serial, expected_p)
     loss_serial, grad_serial = np.empty(a.shape[0]), np.empty_like(a)
     tk._LOSS_KERNELS[family][0](
         a, y, np.empty((1, a.shape[1])), True, 0.7, t2, 0.0, False,
-        np.empty(a.shape[0]), loss_serial, grad_serial, 1,
+        np.empty(a.shape[0]), loss_serial, grad_serial, 0, len(a), 1,
     )  # fmt: skip
     np.testing.assert_array_equal(loss_serial, expected_loss)
     np.testing.assert_array_equal(grad_serial, expected_grad)
