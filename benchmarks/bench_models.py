@@ -147,8 +147,9 @@ def bench_laplace_multiclass(n, d, K, seed=0):
 def run(quick=False):
     """Tempered rows at n = 1e5, d = 20, K in {2, 10}; multiclass Laplace rows."""
     rows = [bench_tempered(100_000, 20, 2)]
-    # K = 10 at n = 1e5 costs tens of seconds a fit here: the quick run
-    # uses 1e4 rows (indicative) and one multiclass Laplace size.
+    # The quick run uses 1e4 rows for K = 10 (indicative, about 1 s a fit
+    # at 1e5 with its repeats would crowd the two minutes) and one
+    # multiclass Laplace size.
     rows.append(bench_tempered(10_000 if quick else 100_000, 20, 10))
     if quick:
         rows.append(bench_laplace_multiclass(10_000, 10, 10))
