@@ -724,7 +724,8 @@ def _normalise_one(a, t, n, p, lam, want_p, r):
 # module for LLVM to optimise with everything inlined (seconds per kernel).
 # Both take (..., start, stop, n_chunks) so that launch() can hand them the
 # same arguments; the parallel one splits [start, stop) into n_chunks
-# chunks, the serial one ignores n_chunks.
+# chunks, the serial one ignores n_chunks (the parallel one passes its own
+# n_chunks on, not a literal 1, which numba would type as a second signature).
 
 
 @jit()
@@ -761,7 +762,7 @@ def _chunk(start, stop, j, n_chunks):
 def _normalise_general_parallel(a, t, p, lam, want_p, start, stop, n_chunks):
     for j in numba.prange(n_chunks):
         lo, hi = _chunk(start, stop, j, n_chunks)
-        _normalise_general_serial(a, t, p, lam, want_p, lo, hi, 1)
+        _normalise_general_serial(a, t, p, lam, want_p, lo, hi, n_chunks)
 
 
 @jit(parallel=True)
@@ -769,7 +770,7 @@ def _normalise_blocked_parallel(a, t, p, lam, want_p, start, stop, n_chunks):
     # Chunks rather than rows: each allocates its block scratch once.
     for j in numba.prange(n_chunks):
         lo, hi = _chunk(start, stop, j, n_chunks)
-        _normalise_blocked_serial(a, t, p, lam, want_p, lo, hi, 1)
+        _normalise_blocked_serial(a, t, p, lam, want_p, lo, hi, n_chunks)
 
 
 @numba.njit(nogil=True)
@@ -906,7 +907,7 @@ def _loss_general_parallel(
     for j in numba.prange(n_chunks):
         lo, hi = _chunk(start, stop, j, n_chunks)
         _loss_general_serial(
-            a, idx, yprob, use_index, t1, t2, ls, warm, lam_io, loss, g, lo, hi, 1
+            a, idx, yprob, use_index, t1, t2, ls, warm, lam_io, loss, g, lo, hi, n_chunks
         )
 
 
@@ -919,7 +920,7 @@ def _loss_blocked_parallel(
     for j in numba.prange(n_chunks):
         lo, hi = _chunk(start, stop, j, n_chunks)
         _loss_blocked_serial(
-            a, idx, yprob, use_index, t1, t2, ls, warm, lam_io, loss, g, lo, hi, 1
+            a, idx, yprob, use_index, t1, t2, ls, warm, lam_io, loss, g, lo, hi, n_chunks
         )
 
 
