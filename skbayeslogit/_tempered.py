@@ -548,13 +548,6 @@ def _solve_block(a, rows, t, n, warm, start, m, lam, scratch):
 
 
 @numba.njit(nogil=True)
-def _use_blocks(k, t, n):
-    # The block solver covers the integer-power cases with K >= 2; other
-    # temperatures need log1p/exp per element, which do not vectorise here.
-    return k >= 2 and t != 1.0 and n != 0
-
-
-@numba.njit(nogil=True)
 def _fill_probabilities(row, m, lam, t, n, out):
     if t == 1.0:
         for i in range(row.shape[0]):
@@ -715,7 +708,7 @@ def _normalise_one(a, t, n, p, lam, want_p, r):
 
 # Two kernel families: "general" solves one row at a time for any
 # temperature; "blocked" solves rows in blocks for the integer-power
-# temperatures (_use_blocks).  Python picks the family, so a fit compiles
+# temperatures (_kernel_family).  Python picks the family, so a fit compiles
 # only the one it runs (each is several seconds of LLVM time).
 
 
@@ -851,7 +844,7 @@ def _loss_general_serial(
 def _loss_blocked_serial(
     a, idx, yprob, use_index, t1, t2, ls, warm, lam_io, loss, g, start, stop, n_chunks
 ):
-    # As _loss_general_serial, for the integer-power t2 of _use_blocks.
+    # As _loss_general_serial, for the integer-power t2 of _kernel_family.
     k = a.shape[1]
     n2 = _integer_power(t2)
     w = np.empty(k)
@@ -925,8 +918,13 @@ def _loss_blocked_parallel(
 
 
 def _kernel_family(k, t):
-    """'blocked' when :func:`_use_blocks` holds for K classes at temperature t."""
-    return "blocked" if _use_blocks.py_func(k, t, _integer_power.py_func(t)) else "general"
+    """'blocked' or 'general': the kernel family for K classes at temperature t.
+
+    The block solver covers the integer-power temperatures with K >= 2; the
+    others need log1p/exp per element, which do not vectorise here.
+    """
+    blocked = k >= 2 and t != 1.0 and _integer_power.py_func(t) != 0
+    return "blocked" if blocked else "general"
 
 
 def _n_chunks(n):
