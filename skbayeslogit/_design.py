@@ -20,13 +20,15 @@ from contextlib import contextmanager
 
 import numpy as np
 
+from ._softmax_kernel import pack_outer
+
 # ~1 MiB of X per block: the fastest measured for the gradient and Hessian
 # passes on a 512 KiB-L2 core (smaller blocks pay more per-block calls).
 _BLOCK_BYTES = 1 << 20
 _TASK_BLOCKS = 8  # blocks per parallel task; results are summed in task order
-# Rows of packed outer products per GEMM in the multiclass Hessian pass:
-# ~1.3 MiB, which stays in L2 (128 rows at d = 50: the fastest measured).
-_OUTER_BYTES = 1 << 20 | 1 << 18
+# Packed outer products per GEMM in the multiclass Hessian pass: 2 MiB
+# (197 rows at d = 50; 1.25 MiB and 4 MiB were 10-20% slower, 0.5 MiB 2x).
+_OUTER_BYTES = 1 << 21
 _MAX_WORKERS = 4  # the per-block Python work holds the GIL: more do not pay
 
 _pool = None
@@ -403,22 +405,25 @@ class LinearDesign:
         K x K matrix ``w_i (diag p_i - p_i p_i^T)`` and ``x_i`` the row with
         a trailing 1 when there is an intercept.  Its distinct entries are
         ``G[(k, l), (a, b)] = sum_i h_i[k, l] x_ia x_ib`` over k <= l and
-        a <= b: one GEMM of the rows' packed ``h`` (n x K(K+1)/2) with their
-        packed outer products (n x d(d+1)/2), per sub-block of rows that
-        stays in cache.  That is half the multiply-adds of a product per
-        class pair and a far better shape for BLAS than K(K+1)/2 products
-        with d x d outputs (measured at d = 10: 8x faster; d = 50: 1.7x).
+        a <= b: one GEMM of the rows' packed ``h`` (n x K(K+1)/2, as the
+        likelihood returns it) with their packed outer products (n x
+        d(d+1)/2), per sub-block of rows that stays in cache.  That is half
+        the multiply-adds of a product per class pair and a far better shape
+        for BLAS than K(K+1)/2 products with d x d outputs (measured at
+        d = 10: 8x faster; d = 50: 1.7x).
         Every entry is still a sum of products of exact factors, with no
         difference of two large terms.  :meth:`_unpack_multi` expands G.
         """
-        q, d = self.q, self.d
+        d = self.d
         dx = d + 1 if self.fit_intercept else d
-        ku, lu = np.triu_indices(q)
-        packed = np.zeros((ku.size, dx * (dx + 1) // 2))
+        n_outer = dx * (dx + 1) // 2
+        packed = np.zeros((likelihood.pairs[0].size, n_outer))
         grad = np.zeros(self.p_full)
-        sub = max(16, _OUTER_BYTES // (8 * packed.shape[1]))
-        outer = np.empty((sub, packed.shape[1]))
-        xa = np.ones((sub, dx))
+        # The sub-block's rows go down the columns, so that every pair's
+        # products are one contiguous row of outer_t (``pack_outer``).
+        sub = max(16, _OUTER_BYTES // (8 * n_outer))
+        outer_t = np.empty((n_outer, sub))
+        x_t = np.ones((dx, sub))
         loss = 0.0
         nc = self.n_coef
         for start in range(first, last, rows):
@@ -432,34 +437,47 @@ class LinearDesign:
             grad[:nc] += (g.T @ Xb).ravel()
             if self.fit_intercept:
                 grad[nc:] += g.sum(axis=0)
-            hp = h[:, ku, lu]
             for s0 in range(0, stop - start, sub):
                 m = min(sub, stop - start - s0)
-                xa[:m, :d] = Xb[s0 : s0 + m]
-                off = 0
-                for a in range(dx):
-                    np.multiply(xa[:m, a : a + 1], xa[:m, a:], out=outer[:m, off : off + dx - a])
-                    off += dx - a
-                packed += hp[s0 : s0 + m].T @ outer[:m]
+                x_t[:d, :m] = Xb[s0 : s0 + m].T
+                pack_outer(x_t, m, outer_t)
+                packed += h[s0 : s0 + m].T @ outer_t[:, :m].T
         return loss, grad, packed
 
     def _unpack_multi(self, packed):
-        """The full symmetric (p_full, p_full) Hessian from the packed sums."""
+        """The full symmetric (p_full, p_full) Hessian from the packed sums.
+
+        Entry (j, t) of ``packed``, class pair (k, l) and column pair
+        (a, b), is H[(k, a), (l, b)] and, by the symmetry of each row's
+        outer product and of H, also H[(k, b), (l, a)], H[(l, b), (k, a)]
+        and H[(l, a), (k, b)]: four scatters of the whole array, through
+        flat positions computed once per design (a loop over the class
+        pairs with index-grid assignments took 6.6 ms at K = 10, d = 50).
+        """
+        if getattr(self, "_unpack_positions", None) is None:
+            self._unpack_positions = self._packed_positions()
+        hess = np.empty((self.p_full, self.p_full))
+        flat = hess.reshape(-1)
+        values = packed.reshape(-1)
+        for positions in self._unpack_positions:
+            flat[positions] = values
+        return hess
+
+    def _packed_positions(self):
+        """Flat positions in H of the packed entries, the four symmetric copies."""
         q, d, nc = self.q, self.d, self.n_coef
         dx = d + 1 if self.fit_intercept else d
         ku, lu = np.triu_indices(q)
         au, bu = np.triu_indices(dx)
-        hess = np.empty((self.p_full, self.p_full))
-        block = np.empty((dx, dx))
-        # Parameter index of (class k, column a); column d is the intercept.
-        tail = [[nc + k] if self.fit_intercept else [] for k in range(q)]
-        index = [np.r_[k * d + np.arange(d), tail[k]].astype(np.intp) for k in range(q)]
-        for j, (k, l) in enumerate(zip(ku, lu, strict=True)):
-            block[au, bu] = packed[j]
-            block[bu, au] = packed[j]
-            hess[np.ix_(index[k], index[l])] = block
-            hess[np.ix_(index[l], index[k])] = block.T
-        return hess
+
+        def param(k, a):
+            # Parameter index of (class k, column a); column d is the intercept.
+            k, a = k[:, None], a[None, :]
+            return np.where(a < d, k * d + a, nc + k)
+
+        p = self.p_full
+        ka, lb, kb, la = param(ku, au), param(lu, bu), param(ku, bu), param(lu, au)
+        return [(r * p + c).reshape(-1) for r, c in ((ka, lb), (kb, la), (lb, ka), (la, kb))]
 
 
 def _add_parts(acc, part):

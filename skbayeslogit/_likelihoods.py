@@ -13,18 +13,21 @@ Binary likelihoods (``n_outputs == 1``) take ``y`` in {0, 1} (float64, shape
 (n,)), ``eta`` of shape (n,) and return ``g`` and ``h`` of shape (n,).
 Multiclass likelihoods (``n_outputs == K``) take integer class codes ``y`` of
 shape (n,), ``eta`` of shape (n, K) and return ``g`` of shape (n, K) and ``h``
-of shape (n, K, K). All returned quantities already include the row weights
-``w`` (shape (n,), non-negative).
+of shape (n, K(K+1)/2): the upper triangle of each row's symmetric K x K
+Hessian, pairs in ``np.triu_indices(K)`` order (attribute ``pairs``). All
+returned quantities already include the row weights ``w`` (shape (n,),
+non-negative).
 
 Each likelihood has ``loss``, ``loss_grad`` (loss and ``g``) and
 ``derivatives`` (loss, ``g`` and ``h``): the solver's gradient-only passes
 (``_newton``) call ``loss_grad``, which skips ``h``, the costly part for K
-classes (K x K per row).
+classes (K(K+1)/2 per row).
 """
 
 import numpy as np
 
 from ._logistic_kernel import logistic_derivatives, logistic_loss
+from ._softmax_kernel import softmax_rows
 from ._special import log_expit, log_ndtr, probit_hessian_factor
 
 # log sqrt(2 pi): the normal density is exp(-z^2 / 2 - _HALF_LOG_2PI).
@@ -67,42 +70,36 @@ class MultinomialLogistic:
 
     def __init__(self, n_classes):
         self.n_outputs = int(n_classes)
+        # Class pairs (k, l), k <= l, in np.triu_indices order: the layout of
+        # the packed Hessian factor.
+        self.pairs = np.triu_indices(self.n_outputs)
 
     @staticmethod
     def _log_softmax(eta):
+        """log p, shape (n, K): the separation checks read the observed class's."""
         shifted = eta - eta.max(axis=1, keepdims=True)
         return shifted - np.log(np.exp(shifted).sum(axis=1, keepdims=True))
 
     def loss(self, y, eta, w):
         """Weighted sum of -log p(y | eta); a float."""
-        logp = self._log_softmax(eta)
-        return float(-(w @ logp[np.arange(len(y)), y]))
+        shifted = eta - eta.max(axis=1, keepdims=True)
+        log_total = np.log(np.exp(shifted).sum(axis=1))
+        return float(w @ (log_total - shifted[np.arange(len(y)), y]))
 
     def derivatives(self, y, eta, w):
-        """Loss sum, g = w (p - onehot(y)) of shape (n, K), h of shape (n, K, K).
+        """Loss sum, g = w (p - onehot(y)) of shape (n, K), packed h of shape (n, K(K+1)/2).
 
-        h[i] = w_i (diag(p_i) - p_i p_i^T), the softmax Hessian.
+        h holds the upper triangle (pairs k <= l in ``self.pairs`` order) of
+        each row's softmax Hessian w_i (diag(p_i) - p_i p_i^T): the matrix
+        is symmetric, and the design's Hessian pass needs exactly these
+        K(K+1)/2 entries per row, so the full K x K array is never formed.
+        One compiled loop over the rows (``_softmax_kernel``).
         """
-        logp = self._log_softmax(eta)
-        rows = np.arange(len(y))
-        loss = float(-(w @ logp[rows, y]))
-        p = np.exp(logp)
-        g = p * w[:, None]
-        g[rows, y] -= w
-        wp = p * w[:, None]
-        h = -wp[:, :, None] * p[:, None, :]
-        k = np.arange(self.n_outputs)
-        h[:, k, k] += wp
-        return loss, g, h
+        return softmax_rows(y, eta, w, True)
 
     def loss_grad(self, y, eta, w):
         """Loss sum and g = w (p - onehot(y)), shape (n, K), without h."""
-        logp = self._log_softmax(eta)
-        rows = np.arange(len(y))
-        loss = float(-(w @ logp[rows, y]))
-        g = np.exp(logp)
-        g *= w[:, None]
-        g[rows, y] -= w
+        loss, g, _ = softmax_rows(y, eta, w, False)
         return loss, g
 
 

@@ -1,0 +1,119 @@
+"""Compiled loops of the multiclass (softmax) passes.
+
+Two kernels, each one float64 signature compiled on first use (never at
+import) and cached on disk when a cache directory is writable (see
+``_numba_config.jit``); only multiclass fits compile them.
+
+``softmax_rows``
+    The softmax likelihood of a block of rows in one read of ``eta``: the
+    weighted loss sum, ``g = w (p - onehot(y))`` and, when asked, the packed
+    upper triangle of each row's Hessian factor ``w (diag p - p p^T)``. The
+    numpy version made ten passes over (n, K) temporaries, two fancy-index
+    gathers for the class pairs and a second ``exp`` for p: 0.19 us a row at
+    K = 10, three times this loop, and most of a gradient pass.
+
+``pack_outer``
+    The packed outer products ``x_a x_b`` (a <= b) of a sub-block of rows,
+    one row of the output per pair, for the GEMM of the multiclass Hessian
+    pass (``_design``). The same loop in numpy is one broadcast product per
+    column a, d + 1 calls per sub-block, which held the GIL between them and
+    cost half as much as the GEMM itself at d = 50.
+
+Both run in the design's worker threads (``nogil``) on the rows of one task.
+"""
+
+import numpy as np
+
+from ._numba_config import jit
+
+
+@jit()
+def _softmax_rows(y, eta, w, g, h, want_h):  # pragma: no cover - runs compiled
+    n, K = eta.shape
+    p = np.empty(K)
+    total = 0.0
+    for i in range(n):
+        top = eta[i, 0]
+        for k in range(1, K):
+            top = max(top, eta[i, k])
+        # The largest term is exp(0) = 1: s >= 1, so log(s) and 1 / s are safe.
+        s = 0.0
+        for k in range(K):
+            e = np.exp(eta[i, k] - top)
+            p[k] = e
+            s += e
+        wi = w[i]
+        yi = y[i]
+        total += wi * (np.log(s) - (eta[i, yi] - top))
+        inv = 1.0 / s
+        for k in range(K):
+            p[k] *= inv
+            g[i, k] = wi * p[k]
+        g[i, yi] -= wi
+        if want_h:
+            j = 0
+            for k in range(K):
+                wpk = wi * p[k]
+                h[i, j] = wpk * (1.0 - p[k])
+                j += 1
+                for m in range(k + 1, K):
+                    h[i, j] = -(wpk * p[m])
+                    j += 1
+    return total
+
+
+@jit()
+def _pack_outer(x_t, m, out):  # pragma: no cover - runs compiled
+    dx = x_t.shape[0]
+    j = 0
+    for a in range(dx):
+        for b in range(a, dx):
+            for i in range(m):
+                out[j, i] = x_t[a, i] * x_t[b, i]
+            j += 1
+
+
+def softmax_rows(y, eta, w, want_h):
+    """Weighted loss sum, g (n, K) and, with ``want_h``, packed h (n, K(K+1)/2).
+
+    Parameters
+    ----------
+    y : ndarray of shape (n,), int
+        Class codes in 0..K-1.
+    eta : ndarray of shape (n, K)
+    w : ndarray of shape (n,)
+        Non-negative row weights.
+    want_h : bool
+        Whether to form h; without it the returned h is None.
+
+    Returns
+    -------
+    loss : float
+    g : ndarray of shape (n, K)
+    h : ndarray of shape (n, K(K+1)/2) or None
+        Pairs k <= l in ``np.triu_indices(K)`` order.
+    """
+    y = np.ascontiguousarray(y, dtype=np.int64)
+    eta = np.ascontiguousarray(eta, dtype=np.float64)
+    w = np.ascontiguousarray(w, dtype=np.float64)
+    n, K = eta.shape
+    g = np.empty((n, K))
+    # One signature whether or not h is wanted: an empty h stands in.
+    h = np.empty((n, K * (K + 1) // 2) if want_h else (0, 0))
+    loss = _softmax_rows(y, eta, w, g, h, bool(want_h))
+    return float(loss), g, (h if want_h else None)
+
+
+def pack_outer(x_t, m, out):
+    """Fill ``out[j, :m]`` with ``x_t[a, :m] * x_t[b, :m]`` for the pairs a <= b.
+
+    Parameters
+    ----------
+    x_t : ndarray of shape (dx, sub), float64, C order
+        A sub-block of rows, transposed (rows down the columns).
+    m : int
+        Rows in use, m <= sub.
+    out : ndarray of shape (dx (dx + 1) / 2, sub), float64, C order
+        Written in place; pairs in ``np.triu_indices(dx)`` order.
+    """
+    _pack_outer(x_t, np.int64(m), out)

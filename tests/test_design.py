@@ -1,0 +1,135 @@
+"""The blocked data passes against the textbook formulas, computed directly.
+
+References: the logistic and softmax log-likelihoods, gradients and Hessians
+of Bishop, Pattern Recognition and Machine Learning (2006), eqs. 4.90-4.97
+(binary) and 4.108-4.110 (softmax, the Hessian blocks
+sum_n y_nk (I_kj - y_nj) phi_n phi_n^T), evaluated here with
+scipy.special's log_expit / log_softmax and dense numpy products over all
+rows at once. The passes instead work in row blocks, tasks and sub-blocks,
+on worker threads, with a packed class-pair layout for K > 2; the sizes
+below make every one of those splits uneven.
+
+Tolerance: every entry is a sum of n = 3,001 products of O(1) factors,
+summed in a different order on each side, so the two agree to a few
+n * eps relative to the largest entry; 1e-12 is ~1,500 eps and fails on
+any wrong index, weight or missing term.
+"""
+
+import numpy as np
+import pytest
+from scipy.special import expit, log_expit, log_softmax, softmax
+
+from skbayeslogit import _design
+from skbayeslogit._design import LinearDesign, passes_own_threads
+from skbayeslogit._likelihoods import BinaryLogistic, MultinomialLogistic
+
+RTOL = 1e-12
+
+
+def _data(n, d, K, seed=0):
+    rng = np.random.default_rng(seed)
+    X = rng.normal(size=(n, d))
+    y = rng.integers(0, K, size=n)
+    w = rng.uniform(0.2, 3.0, size=n)
+    return X, y, w
+
+
+def _close(actual, expected):
+    scale = float(np.max(np.abs(expected)))
+    np.testing.assert_allclose(actual, expected, rtol=0, atol=RTOL * scale)
+
+
+@pytest.fixture(params=[False, True], ids=["serial", "threads"])
+def threaded(request, monkeypatch):
+    """Run the passes in the calling thread, or force tasks onto workers."""
+    if request.param:
+        monkeypatch.setattr(_design, "_SERIAL_WORK", 0.0)
+    return request.param
+
+
+@pytest.mark.parametrize("fit_intercept", [True, False])
+def test_binary_pass_matches_direct_formula(fit_intercept, threaded):
+    n, d = 3_001, 7
+    X, y, w = _data(n, d, 2)
+    design = LinearDesign(X, 1, fit_intercept, block_rows=97)
+    theta = np.random.default_rng(1).normal(scale=0.5, size=design.p_full)
+    with passes_own_threads():
+        loss, grad, hess, eta = design.loss_grad_hess(BinaryLogistic(), y.astype(float), w, theta)
+        loss_g, grad_g, eta_g = design.loss_grad(BinaryLogistic(), y.astype(float), w, theta)
+
+    Xt = np.column_stack([X, np.ones(n)]) if fit_intercept else X
+    eta_ref = Xt @ theta
+    p = expit(eta_ref)
+    loss_ref = -np.sum(w * np.where(y == 1, log_expit(eta_ref), log_expit(-eta_ref)))
+    grad_ref = Xt.T @ (w * (p - y))
+    hess_ref = Xt.T @ ((w * p * (1 - p))[:, None] * Xt)
+
+    _close(eta, eta_ref)
+    _close(eta_g, eta_ref)
+    np.testing.assert_allclose([loss, loss_g], [loss_ref, loss_ref], rtol=RTOL)
+    _close(grad, grad_ref)
+    _close(grad_g, grad_ref)
+    _close(hess, hess_ref)
+    np.testing.assert_array_equal(hess, hess.T)
+
+
+@pytest.mark.parametrize(("K", "fit_intercept"), [(3, True), (5, True), (4, False)])
+def test_multiclass_pass_matches_direct_formula(K, fit_intercept, threaded):
+    n, d = 3_001, 6
+    X, y, w = _data(n, d, K)
+    design = LinearDesign(X, K, fit_intercept, block_rows=97)
+    theta = np.random.default_rng(2).normal(scale=0.7, size=design.p_full)
+    lik = MultinomialLogistic(K)
+    with passes_own_threads():
+        loss, grad, hess, eta = design.loss_grad_hess(lik, y, w, theta)
+        loss_g, grad_g, eta_g = design.loss_grad(lik, y, w, theta)
+
+    W = theta[: K * d].reshape(K, d)
+    b = theta[K * d :] if fit_intercept else np.zeros(K)
+    eta_ref = X @ W.T + b
+    P = softmax(eta_ref, axis=1)
+    Y = np.eye(K)[y]
+    loss_ref = -np.sum(w * log_softmax(eta_ref, axis=1)[np.arange(n), y])
+    G = w[:, None] * (P - Y)  # (n, K)
+    grad_ref = (G.T @ X).ravel()
+    if fit_intercept:
+        grad_ref = np.concatenate([grad_ref, G.sum(axis=0)])
+    # Parameter (k, a) for a column a of X, then the intercept of class k.
+    Xt = np.column_stack([X, np.ones(n)]) if fit_intercept else X
+    index = [
+        np.r_[k * d + np.arange(d), [K * d + k] if fit_intercept else []].astype(int)
+        for k in range(K)
+    ]
+    hess_ref = np.empty((design.p_full, design.p_full))
+    for k in range(K):
+        for j in range(K):
+            r = w * P[:, k] * ((k == j) - P[:, j])
+            hess_ref[np.ix_(index[k], index[j])] = Xt.T @ (r[:, None] * Xt)
+
+    _close(eta, eta_ref)
+    _close(eta_g, eta_ref)
+    np.testing.assert_allclose([loss, loss_g], [loss_ref, loss_ref], rtol=RTOL)
+    _close(grad, grad_ref)
+    _close(grad_g, grad_ref)
+    _close(hess, hess_ref)
+    np.testing.assert_array_equal(hess, hess.T)
+
+
+def test_softmax_packed_hessian_factor_is_the_upper_triangle():
+    """h of the softmax likelihood: the k <= l entries of w (diag p - p p^T)."""
+    K, n = 6, 50
+    rng = np.random.default_rng(3)
+    eta = rng.normal(scale=3.0, size=(n, K))
+    y = rng.integers(0, K, size=n)
+    w = rng.uniform(0.5, 2.0, size=n)
+    lik = MultinomialLogistic(K)
+    loss, g, h = lik.derivatives(y, eta, w)
+    P = softmax(eta, axis=1)
+    outer = P[:, :, None] * P[:, None, :]
+    full = w[:, None, None] * (np.einsum("nk,kl->nkl", P, np.eye(K)) - outer)
+    k, l = np.triu_indices(K)
+    np.testing.assert_allclose(h, full[:, k, l], rtol=1e-13, atol=1e-16)
+    np.testing.assert_allclose(g, w[:, None] * (P - np.eye(K)[y]), rtol=1e-13, atol=1e-16)
+    np.testing.assert_allclose(loss, lik.loss(y, eta, w), rtol=1e-14)
+    log_p = log_softmax(eta, axis=1)[np.arange(n), y]
+    np.testing.assert_allclose(loss, -np.sum(w * log_p), rtol=1e-14)
