@@ -140,6 +140,30 @@ def _sufficient_decrease(E, E_try, g_try, delta, decrement, armijo):
     return abs(E_try - E) <= _E_ROUNDING * abs(E) and slope_try <= (1.0 - 2.0 * armijo) * decrement
 
 
+def _free_map_blocks(T):
+    """T as unit columns, then a dense block: ``(lead, tail, B)``, or None.
+
+    The free maps of ``_base.free_parameter_map`` select parameters (the
+    columns of T are unit vectors at rows ``lead``) and, for zero-sum
+    intercepts, add a small basis ``B`` on the remaining rows ``tail``. Then
+    T^T H T has the blocks H[lead, lead], H[lead, tail] B and
+    B^T H[tail, tail] B, the first copied exactly.
+    """
+    n_unit = 0
+    for column in T.T:
+        nonzero = np.flatnonzero(column)
+        if nonzero.size != 1 or column[nonzero[0]] != 1.0:
+            break
+        n_unit += 1
+    lead = np.argmax(T[:, :n_unit], axis=0) if n_unit else np.zeros(0, dtype=np.intp)
+    tail = np.setdiff1d(np.arange(T.shape[0]), lead)
+    B = T[tail, n_unit:]
+    rebuilt = np.zeros_like(T)
+    rebuilt[lead, np.arange(n_unit)] = 1.0
+    rebuilt[tail, n_unit:] = B
+    return (lead, tail, B) if np.array_equal(rebuilt, T) else None
+
+
 def _robust_cholesky(H):
     """Lower Cholesky factor of H, adding the smallest diagonal jitter needed."""
     try:
@@ -181,6 +205,7 @@ class NewtonProblem:
         self.prior_precision = np.asarray(prior_precision, dtype=np.float64)
         self.free_map = free_map
         self.p_free = design.p_full if free_map is None else free_map.shape[1]
+        self._free_blocks = None if free_map is None else _free_map_blocks(free_map)
 
     def to_full(self, phi):
         return phi if self.free_map is None else self.free_map @ phi
@@ -191,8 +216,18 @@ class NewtonProblem:
     def to_free_hess(self, H):
         if self.free_map is None:
             return H
-        T = self.free_map
-        return T.T @ H @ T
+        if self._free_blocks is None:
+            T = self.free_map
+            return T.T @ H @ T
+        # T^T H T by blocks: two dense p^3 products took 15 ms a pass at
+        # p = 510, these gathers well under one.
+        lead, tail, B = self._free_blocks
+        H_lead = H[np.ix_(lead, lead)]
+        if B.shape[1] == 0:
+            return H_lead
+        H_cross = H[np.ix_(lead, tail)] @ B
+        H_tail = B.T @ H[np.ix_(tail, tail)] @ B
+        return np.block([[H_lead, H_cross], [H_cross.T, H_tail]])
 
     def penalty(self, theta):
         return 0.5 * float(theta @ (self.prior_precision * theta))
