@@ -221,9 +221,11 @@ class LinearDesign:
         ----------
         likelihood : object with ``loss_grad(y, eta, w)``
             Optional attributes: ``work_per_row`` (flops a row of the
-            likelihood costs, to decide whether the pass is threaded) and
+            likelihood costs, to decide whether the pass is threaded),
             ``wants_rows`` (then it is called as ``loss_grad(y, eta, w,
-            rows=(start, stop))`` with the span's row range).
+            rows=(start, stop))`` with the span's row range) and, for one
+            output, ``gradient_span(X, coef, b0, y, w, eta)``, a fused pass
+            over a whole span of rows that replaces the blocks.
         y, w : ndarray of shape (n,)
         theta : ndarray of shape (p_full,)
 
@@ -258,6 +260,17 @@ class LinearDesign:
     def _gradient_task(self, likelihood, y, w, W, b, eta, first, last, rows):
         """Loss, coefficient gradient (q, d) and intercept gradient (q,) of rows [first, last)."""
         binary = self.q == 1
+        fused = getattr(likelihood, "gradient_span", None)
+        if binary and fused is not None and self.X.flags.c_contiguous:
+            loss, gx, gb = fused(
+                np.asarray(self.X[first:last]),
+                W[0],
+                b[0] if self.fit_intercept else 0.0,
+                y[first:last],
+                w[first:last],
+                eta[first:last],
+            )
+            return loss, gx[None, :], np.array([gb])
         wants_rows = getattr(likelihood, "wants_rows", False)
         gW = np.zeros((self.q, self.d))
         gb = np.zeros(self.q)

@@ -26,7 +26,7 @@ classes (K(K+1)/2 per row).
 
 import numpy as np
 
-from ._logistic_kernel import logistic_derivatives, logistic_loss
+from ._logistic_kernel import gradient_span, logistic_derivatives, logistic_loss
 from ._softmax_kernel import softmax_rows
 from ._special import log_expit, log_ndtr, probit_hessian_factor
 
@@ -57,6 +57,10 @@ class BinaryLogistic:
         # The fused kernel's h costs one multiply a row more than skipping it.
         loss, g, _ = logistic_derivatives(y, eta, w)
         return loss, g
+
+    # The design's gradient pass hands whole row spans to this instead of
+    # calling loss_grad block by block (see _logistic_kernel).
+    gradient_span = staticmethod(gradient_span)
 
     def log_prob_positive(self, eta):
         """log P(y = 1 | eta), shape of ``eta``."""

@@ -48,10 +48,12 @@ def threaded(request, monkeypatch):
 
 
 @pytest.mark.parametrize("fit_intercept", [True, False])
-def test_binary_pass_matches_direct_formula(fit_intercept, threaded):
+@pytest.mark.parametrize("order", ["C", "F"])
+def test_binary_pass_matches_direct_formula(fit_intercept, order, threaded):
+    """C-ordered X takes the fused gradient kernel, F-ordered the blocks."""
     n, d = 3_001, 7
     X, y, w = _data(n, d, 2)
-    design = LinearDesign(X, 1, fit_intercept, block_rows=97)
+    design = LinearDesign(np.asarray(X, order=order), 1, fit_intercept, block_rows=97)
     theta = np.random.default_rng(1).normal(scale=0.5, size=design.p_full)
     with passes_own_threads():
         loss, grad, hess, eta = design.loss_grad_hess(BinaryLogistic(), y.astype(float), w, theta)
