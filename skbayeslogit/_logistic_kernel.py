@@ -33,14 +33,12 @@ instead. X, y and w are typed read-only, which read-only inputs need and
 writable ones also match, so neither makes a second compile.
 """
 
-import threading
-
 import numpy as np
+
+from ._numba_config import lazy_kernel
 
 _VEC = "float64[::1]"
 _SIGNATURE = f"float64({_VEC}, {_VEC}, {_VEC}, {_VEC}, {_VEC}, boolean)"
-_kernels = {}
-_lock = threading.Lock()
 
 
 def _pointwise(y, eta, w, g, h, derivs):  # pragma: no cover - runs compiled
@@ -106,25 +104,8 @@ def _span_signature():
     return types.float64(matrix, vector, types.float64, vector, vector, out, out, types.int64)
 
 
-def _compiled(name="pointwise"):
-    kernel = _kernels.get(name)
-    if kernel is None:
-        with _lock:
-            kernel = _kernels.get(name)
-            if kernel is None:
-                import numba
-
-                if name == "pointwise":
-                    func, signature = _pointwise, _SIGNATURE
-                else:
-                    func, signature = _gradient_span, _span_signature()
-                try:
-                    kernel = numba.njit(signature, cache=True, nogil=True)(func)
-                except RuntimeError:
-                    # No writable cache directory: compile in memory.
-                    kernel = numba.njit(signature, cache=False, nogil=True)(func)
-                _kernels[name] = kernel
-    return kernel
+_pointwise_kernel = lazy_kernel(_pointwise, lambda: _SIGNATURE)
+_span_kernel = lazy_kernel(_gradient_span, _span_signature)
 
 
 def _as_vector(a):
@@ -145,7 +126,6 @@ _LOSS_CHUNK = 16384  # rows per loss-only chunk: scratch stays in cache
 def logistic_loss(y, eta, w):
     """Weighted sum of -log p(y | eta) under the logit link; a float."""
     y, eta, w = _as_vector(y), _as_vector(eta), _as_vector(w)
-    kernel = _compiled()
     n = len(eta)
     e = np.empty(min(n, _LOSS_CHUNK))
     l1p = np.empty_like(e)
@@ -154,7 +134,9 @@ def logistic_loss(y, eta, w):
         stop = min(start + _LOSS_CHUNK, n)
         m = stop - start
         _fill_exp_log1p(eta[start:stop], e[:m], l1p[:m])
-        total += kernel(y[start:stop], eta[start:stop], w[start:stop], e[:m], l1p[:m], False)
+        total += _pointwise_kernel(
+            y[start:stop], eta[start:stop], w[start:stop], e[:m], l1p[:m], False
+        )
     return float(total)
 
 
@@ -168,7 +150,7 @@ def logistic_derivatives(y, eta, w):
     g = np.empty_like(eta)
     h = np.empty_like(eta)
     _fill_exp_log1p(eta, g, h)
-    loss = _compiled()(y, eta, w, g, h, True)
+    loss = _pointwise_kernel(y, eta, w, g, h, True)
     return float(loss), g, h
 
 
@@ -199,7 +181,7 @@ def gradient_span(X, coef, b0, y, w, eta):
     d = X.shape[1]
     grad = np.zeros(d + 1)
     chunk = max(64, _SPAN_CHUNK_BYTES // (8 * max(d, 1)))
-    loss = _compiled("span")(
+    loss = _span_kernel(
         X, _as_vector(coef), float(b0), _as_vector(y), _as_vector(w), eta, grad, chunk
     )
     return float(loss), grad[:d], float(grad[d])

@@ -49,7 +49,7 @@ import threading
 
 import numba
 
-__all__ = ["jit", "launch", "serial_kernels", "PARALLEL_MIN_ELEMENTS"]
+__all__ = ["jit", "lazy_kernel", "launch", "serial_kernels", "PARALLEL_MIN_ELEMENTS"]
 
 #: Number of (row x class) work items from which a parallel launch is used.
 #: Measured on the benchmark workloads: below this the thread wake-up costs
@@ -118,6 +118,51 @@ def jit(parallel: bool = False):
             return numba.njit(cache=False, parallel=parallel, nogil=True)(func)
 
     return decorate
+
+
+def lazy_kernel(func, signature):
+    """A callable that compiles ``func`` for one signature on its first call.
+
+    For kernels that take the caller's arrays: an explicit signature typing
+    them read-only accepts writable arrays too, so read-only input (pandas'
+    ``to_numpy()``, a memory map) does not make a second compile, as it
+    would for a lazily specialised ``jit`` kernel. Compiled once per
+    process (thread-safe), cached on disk like :func:`jit`.
+
+    Parameters
+    ----------
+    func : function
+        The kernel's Python source (module level, so the disk cache works).
+    signature : callable
+        Returns the numba signature; called at the first compile only.
+
+    Returns
+    -------
+    kernel : callable
+        Calls the compiled kernel; ``kernel.dispatcher()`` returns the
+        numba dispatcher (None before the first call).
+    """
+    lock = threading.Lock()
+    compiled = []
+
+    def dispatcher():
+        return compiled[0] if compiled else None
+
+    def kernel(*args):
+        if not compiled:
+            with lock:
+                if not compiled:
+                    sig = signature()
+                    try:
+                        compiled.append(numba.njit(sig, cache=True, nogil=True)(func))
+                    except RuntimeError:
+                        # No writable cache directory: compile in memory.
+                        compiled.append(numba.njit(sig, cache=False, nogil=True)(func))
+        return compiled[0](*args)
+
+    kernel.dispatcher = dispatcher
+    kernel.py_func = func
+    return kernel
 
 
 def launch(serial, parallel, work: int, *args):

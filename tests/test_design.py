@@ -135,3 +135,30 @@ def test_softmax_packed_hessian_factor_is_the_upper_triangle():
     np.testing.assert_allclose(loss, lik.loss(y, eta, w), rtol=1e-14)
     log_p = log_softmax(eta, axis=1)[np.arange(n), y]
     np.testing.assert_allclose(loss, -np.sum(w * log_p), rtol=1e-14)
+
+
+def test_one_compiled_signature_per_kernel():
+    """Writable, read-only and pandas inputs all reach the same machine code."""
+    import pandas as pd
+
+    from skbayeslogit import LaplaceLogisticClassifier
+    from skbayeslogit import _logistic_kernel as lk
+    from skbayeslogit import _softmax_kernel as sk
+
+    # 12,000 rows: enough for the subsample start, so that the gradient-only
+    # passes (the fused span kernel) run too.
+    n = 12_000
+    rng = np.random.default_rng(4)
+    X = rng.normal(size=(n, 3))
+    for K in (2, 3):
+        y = rng.integers(0, K, size=n)
+        w = rng.uniform(0.5, 2.0, size=n)
+        frozen = [a.copy() for a in (X, y, w)]
+        for a in frozen:
+            a.setflags(write=False)
+        for args in ((X, y, w), frozen, (pd.DataFrame(X), pd.Series(y).astype(str), w)):
+            LaplaceLogisticClassifier(prior_scale=1.0).fit(*args[:2], sample_weight=args[2])
+    dispatchers = [lk._pointwise_kernel.dispatcher(), lk._span_kernel.dispatcher()]
+    dispatchers += [sk._softmax_rows, sk._pack_outer]
+    for dispatcher in dispatchers:
+        assert dispatcher is not None and len(dispatcher.signatures) == 1, dispatcher
