@@ -121,28 +121,31 @@ _E_ROUNDING = 1e3 * np.finfo(np.float64).eps
 def _sufficient_decrease(E, E_try, g_try, delta, decrement, armijo):
     """Whether the full step ``delta`` decreases E enough (Armijo), judged robustly.
 
-    Three ways to pass, each with the decrement ``-g^T delta`` of the step:
+    With the decrement ``-g^T delta`` of the step, it passes
 
-    - Armijo on E itself: ``E_try <= E - armijo * decrement``;
-    - a proof from convexity, which rounding of E cannot spoil:
+    - by a proof from convexity, which rounding of E cannot spoil:
       ``E_try <= E + g_try^T delta``, so ``g_try^T delta <= -armijo *
       decrement`` is enough;
-    - near the optimum, where E's change is below its own rounding error
-      (``|E_try - E| <= _E_ROUNDING |E|``), the approximate Armijo test of
-      Hager & Zhang (2005, SIAM J. Optim. 16(1), Sec. 4): the trapezoidal
-      estimate ``(g + g_try)^T delta / 2`` of the change must be at most
-      ``-armijo * decrement``. At tol = 1e-12 the exact test rejected good
-      Newton steps as often as not (E ~ 1e5 moved by 3e-11 of rounding
-      against a predicted change of 1e-12), and each rejection cost a pass.
+    - where E's two values differ by more than their rounding error
+      (``_E_ROUNDING |E|``), by the Armijo test on them,
+      ``E_try <= E - armijo * decrement``;
+    - where they do not, by the approximate Armijo test of Hager & Zhang
+      (2005, SIAM J. Optim. 16(1), Sec. 4), since the values then say
+      nothing: the trapezoidal estimate ``(g + g_try)^T delta / 2`` of the
+      change must be at most ``-armijo * decrement``. At tol = 1e-12 the
+      test on values rejected good Newton steps as often as not (E ~ 1e5
+      moved by 3e-11 of rounding against a predicted change of 1e-12), each
+      rejection costing a pass, and it accepted any step whose E rounded to
+      the same value, overshoots included.
     """
     if not np.isfinite(E_try):
         return False
-    if E_try <= E - armijo * decrement:
-        return True
     slope_try = float(np.dot(g_try, delta))
     if slope_try <= -armijo * decrement:
         return True
-    return abs(E_try - E) <= _E_ROUNDING * abs(E) and slope_try <= (1.0 - 2.0 * armijo) * decrement
+    if abs(E_try - E) > _E_ROUNDING * abs(E):
+        return E_try <= E - armijo * decrement
+    return slope_try <= (1.0 - 2.0 * armijo) * decrement
 
 
 def _free_map_blocks(T):
@@ -410,12 +413,13 @@ def _metric_phase(problem, phi, chol, *, max_iter, tol, armijo=1e-4):
     error of M along the directions already explored, which is where the
     remaining error lies. Each step is tried at full length and kept when it
     passes ``_sufficient_decrease`` (Armijo on E, or from the slopes where
-    rounding of E hides the change). The phase ends, leaving the rest to exact Newton, at the first
-    step that fails, when the decrement stops shrinking by ``_METRIC_SLOW``
-    a step, or when half the decrement is below ``tol``. When the observed
-    contraction predicts that the next step will end the phase, its trial
-    pass is a complete one: its Hessian is then the exact one at the
-    returned point, and the separate pass for it is saved.
+    rounding of E hides the change). The phase ends, leaving the rest to
+    exact Newton, at the first step that fails, when the decrement stops
+    shrinking by ``_METRIC_SLOW`` a step, or when half the decrement is
+    below ``tol``. When the observed contraction predicts that the next
+    step will end the phase, its trial pass is a complete one: its Hessian
+    is then the exact one at the returned point, and the separate pass for
+    it is saved.
 
     Parameters
     ----------

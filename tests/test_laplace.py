@@ -568,3 +568,29 @@ def test_feature_names_and_pandas_str_labels():
     assert list(model.classes_) == ["benign", "malignant"]
     assert list(model.feature_names_in_) == list(X.columns)
     assert set(model.predict(X)) <= {"benign", "malignant"}
+
+
+def test_sufficient_decrease_reads_slopes_only_below_rounding():
+    """The step test on E(x) = x^2 / 2 + c, c = 1e5 (so E's ulp is ~1.5e-11).
+
+    A Newton step from x = 1e-6 predicts a change of -5e-13, below E's
+    rounding: the values of E cannot show it, the slopes do (g_try = 0).
+    A step that overshoots to x = -3e-6 raises E by 4e-12, also below the
+    rounding, and its slope g_try * delta = 1.2e-11 > 0 refuses it. A step
+    whose E rises by far more than rounding is refused whatever the slopes
+    (Hager & Zhang 2005, Sec. 4: the approximation is used only where E's
+    difference is at rounding level).
+    """
+    from skbayeslogit._newton import _sufficient_decrease
+
+    c, x = 1e5, 1e-6
+    E = 0.5 * x * x + c
+    for x_try, accepted in ((0.0, True), (-3e-6, False)):
+        delta = np.array([x_try - x])
+        decrement = -float(x * delta[0])
+        E_try = 0.5 * x_try * x_try + c
+        g_try = np.array([x_try])
+        assert _sufficient_decrease(E, E_try, g_try, delta, decrement, 1e-4) is accepted
+    # The same good slopes with E visibly higher: refused.
+    delta = np.array([-x])
+    assert not _sufficient_decrease(E, E + 1e-6, np.array([0.0]), delta, x * x, 1e-4)
