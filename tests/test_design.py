@@ -39,6 +39,20 @@ def _close(actual, expected):
     np.testing.assert_allclose(actual, expected, rtol=0, atol=RTOL * scale)
 
 
+def _assert_passes(full, gradient_only, reference):
+    """Both passes against (loss, grad, hess, eta) computed directly."""
+    loss_ref, grad_ref, hess_ref, eta_ref = reference
+    loss, grad, hess, eta = full
+    loss_g, grad_g, eta_g = gradient_only
+    _close(eta, eta_ref)
+    _close(eta_g, eta_ref)
+    np.testing.assert_allclose([loss, loss_g], [loss_ref, loss_ref], rtol=RTOL)
+    _close(grad, grad_ref)
+    _close(grad_g, grad_ref)
+    _close(hess, hess_ref)
+    np.testing.assert_array_equal(hess, hess.T)
+
+
 @pytest.fixture(params=[False, True], ids=["serial", "threads"])
 def threaded(request, monkeypatch):
     """Run the passes in the calling thread, or force tasks onto workers."""
@@ -56,8 +70,8 @@ def test_binary_pass_matches_direct_formula(fit_intercept, order, threaded):
     design = LinearDesign(np.asarray(X, order=order), 1, fit_intercept, block_rows=97)
     theta = np.random.default_rng(1).normal(scale=0.5, size=design.p_full)
     with passes_own_threads():
-        loss, grad, hess, eta = design.loss_grad_hess(BinaryLogistic(), y.astype(float), w, theta)
-        loss_g, grad_g, eta_g = design.loss_grad(BinaryLogistic(), y.astype(float), w, theta)
+        full = design.loss_grad_hess(BinaryLogistic(), y.astype(float), w, theta)
+        gradient_only = design.loss_grad(BinaryLogistic(), y.astype(float), w, theta)
 
     Xt = np.column_stack([X, np.ones(n)]) if fit_intercept else X
     eta_ref = Xt @ theta
@@ -66,13 +80,7 @@ def test_binary_pass_matches_direct_formula(fit_intercept, order, threaded):
     grad_ref = Xt.T @ (w * (p - y))
     hess_ref = Xt.T @ ((w * p * (1 - p))[:, None] * Xt)
 
-    _close(eta, eta_ref)
-    _close(eta_g, eta_ref)
-    np.testing.assert_allclose([loss, loss_g], [loss_ref, loss_ref], rtol=RTOL)
-    _close(grad, grad_ref)
-    _close(grad_g, grad_ref)
-    _close(hess, hess_ref)
-    np.testing.assert_array_equal(hess, hess.T)
+    _assert_passes(full, gradient_only, (loss_ref, grad_ref, hess_ref, eta_ref))
 
 
 @pytest.mark.parametrize(("K", "fit_intercept"), [(3, True), (5, True), (4, False)])
@@ -83,8 +91,8 @@ def test_multiclass_pass_matches_direct_formula(K, fit_intercept, threaded):
     theta = np.random.default_rng(2).normal(scale=0.7, size=design.p_full)
     lik = MultinomialLogistic(K)
     with passes_own_threads():
-        loss, grad, hess, eta = design.loss_grad_hess(lik, y, w, theta)
-        loss_g, grad_g, eta_g = design.loss_grad(lik, y, w, theta)
+        full = design.loss_grad_hess(lik, y, w, theta)
+        gradient_only = design.loss_grad(lik, y, w, theta)
 
     W = theta[: K * d].reshape(K, d)
     b = theta[K * d :] if fit_intercept else np.zeros(K)
@@ -108,13 +116,7 @@ def test_multiclass_pass_matches_direct_formula(K, fit_intercept, threaded):
             r = w * P[:, k] * ((k == j) - P[:, j])
             hess_ref[np.ix_(index[k], index[j])] = Xt.T @ (r[:, None] * Xt)
 
-    _close(eta, eta_ref)
-    _close(eta_g, eta_ref)
-    np.testing.assert_allclose([loss, loss_g], [loss_ref, loss_ref], rtol=RTOL)
-    _close(grad, grad_ref)
-    _close(grad_g, grad_ref)
-    _close(hess, hess_ref)
-    np.testing.assert_array_equal(hess, hess.T)
+    _assert_passes(full, gradient_only, (loss_ref, grad_ref, hess_ref, eta_ref))
 
 
 def test_softmax_packed_hessian_factor_is_the_upper_triangle():
