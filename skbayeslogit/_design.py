@@ -349,9 +349,9 @@ class LinearDesign:
         released; scipy's ``dsyrk`` wrapper holds the GIL, so two workers
         ran it one after the other, and its orientation was 1.3x slower
         measured on blocks of 2,621 x 51). A is one block-sized buffer per
-        task, never a copy of X. Tasks of
-        ``_TASK_BLOCKS`` consecutive blocks run on worker threads (see
-        ``_map_tasks``) and are summed in row order.
+        task, never a copy of X. Tasks of consecutive blocks (``task_span``)
+        run on worker threads (see ``_map_tasks``) and are summed in row
+        order.
         """
         d, p = self.d, self.p_full
         W, b = self.split(theta)
