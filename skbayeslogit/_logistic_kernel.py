@@ -14,8 +14,8 @@ Split of the work: numpy's ``exp`` and ``log1p`` fill e and log1p(e) into
 the output arrays; one compiled loop then does the rest (the loss sum and g,
 h, overwriting those arrays) in a single read. numpy's SIMD versions (about
 1 ns a row each) made this split ~5 ns a row against ~20 ns for numba's
-scalar calls; numpy has them for AVX-512 only, and on an AVX2 machine its
-exp and log1p cost 5 and 14 ns, about what numba's calls cost there. The
+scalar calls; numpy builds them for AVX-512 (from memory), and on an AVX2
+machine its exp and log1p measured 5 and 14 ns, about what numba's cost. The
 loss is summed in chunks of 1024 rows, so the rounding error of the sum stays
 near (1024 + n / 1024) ulp.
 
