@@ -63,7 +63,12 @@ def time_call(fn, *, repeats=5, warmup=1, max_seconds=None):
     return statistics.median(times), times, result
 
 
-def time_interleaved(fns, *, repeats=5, warmup=1, max_seconds=None):
+# Idle time before each timed call: OpenBLAS's threads spin for 2^28 cycles
+# (0.11 s at 2.45 GHz) after a multi-threaded call before they sleep.
+SETTLE_SECONDS = 0.15
+
+
+def time_interleaved(fns, *, repeats=5, warmup=1, max_seconds=None, settle=SETTLE_SECONDS):
     """Median wall times of several callables, measured in turns.
 
     Round r times every callable once before round r + 1 starts, so a burst
@@ -79,6 +84,13 @@ def time_interleaved(fns, *, repeats=5, warmup=1, max_seconds=None):
     binary Laplace fit (n = 1e5, d = 50) measured 113 ms right after
     scikit-learn's newton-cholesky and 91 ms after another fit.
 
+    Each timed call also starts after ``settle`` seconds of idling, so that
+    OpenBLAS's threads, which spin for about 0.1 s after a multi-threaded
+    call, are asleep: without it a call's time depended on what ran before
+    it (the same fit measured 133 ms right after scikit-learn's lbfgs, 113
+    ms 0.05 s later, 83 ms 0.3 s later), and in interactive use there is
+    time between calls. The pause is not counted.
+
     Parameters
     ----------
     fns : dict of name -> callable with no arguments
@@ -87,6 +99,8 @@ def time_interleaved(fns, *, repeats=5, warmup=1, max_seconds=None):
     max_seconds : float, optional
         Stop starting new rounds once this much timed wall time has been
         spent (at least one round is always timed).
+    settle : float
+        Idle seconds before each timed call (not counted).
 
     Returns
     -------
@@ -103,6 +117,7 @@ def time_interleaved(fns, *, repeats=5, warmup=1, max_seconds=None):
         k = r % len(names)
         for name in names[k:] + names[:k]:
             fn = fns[name]
+            time.sleep(settle)
             t0 = time.perf_counter()
             results[name] = fn()
             dt = time.perf_counter() - t0
