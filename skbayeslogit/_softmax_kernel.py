@@ -9,8 +9,9 @@ import) and cached on disk when a cache directory is writable (see
     weighted loss sum, ``g = w (p - onehot(y))`` and, when asked, the packed
     upper triangle of each row's Hessian factor ``w (diag p - p p^T)``. The
     numpy version made ten passes over (n, K) temporaries, two fancy-index
-    gathers for the class pairs and a second ``exp`` for p: 0.19 us a row at
-    K = 10, three times this loop, and most of a gradient pass.
+    gathers for the class pairs and a second ``exp`` for p. Measured at
+    K = 10, one thread: loss and g 0.19 -> 0.09-0.14 us a row; with h
+    0.62-0.77 -> 0.25 us.
 
 ``pack_outer``
     The packed outer products ``x_a x_b`` (a <= b) of a sub-block of rows,
