@@ -80,15 +80,14 @@ class MultinomialLogistic:
 
     @staticmethod
     def _log_softmax(eta):
-        """log p, shape (n, K): the separation checks read the observed class's."""
+        """log p, shape (n, K)."""
         shifted = eta - eta.max(axis=1, keepdims=True)
         return shifted - np.log(np.exp(shifted).sum(axis=1, keepdims=True))
 
     def loss(self, y, eta, w):
         """Weighted sum of -log p(y | eta); a float."""
-        shifted = eta - eta.max(axis=1, keepdims=True)
-        log_total = np.log(np.exp(shifted).sum(axis=1))
-        return float(w @ (log_total - shifted[np.arange(len(y)), y]))
+        logp = self._log_softmax(eta)
+        return float(-(w @ logp[np.arange(len(y)), y]))
 
     def derivatives(self, y, eta, w):
         """Loss sum, g = w (p - onehot(y)) of shape (n, K), packed h of shape (n, K(K+1)/2).

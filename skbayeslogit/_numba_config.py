@@ -111,13 +111,19 @@ def jit(parallel: bool = False):
     """
 
     def decorate(func):
-        try:
-            return numba.njit(cache=True, parallel=parallel, nogil=True)(func)
-        except RuntimeError:
-            # numba: "cannot cache function ...: no locator available".
-            return numba.njit(cache=False, parallel=parallel, nogil=True)(func)
+        return _njit(func, parallel=parallel)
 
     return decorate
+
+
+def _njit(func, signature=None, parallel=False):
+    """numba.njit(func), cached on disk when a cache directory is writable."""
+    args = () if signature is None else (signature,)
+    try:
+        return numba.njit(*args, cache=True, parallel=parallel, nogil=True)(func)
+    except RuntimeError:
+        # numba: "cannot cache function ...: no locator available".
+        return numba.njit(*args, cache=False, parallel=parallel, nogil=True)(func)
 
 
 def lazy_kernel(func, signature):
@@ -152,12 +158,7 @@ def lazy_kernel(func, signature):
         if not compiled:
             with lock:
                 if not compiled:
-                    sig = signature()
-                    try:
-                        compiled.append(numba.njit(sig, cache=True, nogil=True)(func))
-                    except RuntimeError:
-                        # No writable cache directory: compile in memory.
-                        compiled.append(numba.njit(sig, cache=False, nogil=True)(func))
+                    compiled.append(_njit(func, signature()))
         return compiled[0](*args)
 
     kernel.dispatcher = dispatcher
