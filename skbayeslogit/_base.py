@@ -37,6 +37,7 @@ from ._posterior import GaussianPosterior
 from ._sources import dask_aware, fit_design, is_out_of_core
 from ._special import expit
 from ._validation import (
+    _MAX_ABS_FEATURE,
     _as_labels,
     _check_magnitude,
     _plain,
@@ -124,14 +125,20 @@ class LinearClassifierBase(ClassifierMixin, BaseEstimator):
                 )
         return X, y_codes, w
 
-    def _validate_predict_data(self, X):
+    def _validate_predict_data(self, X, check_range=True):
+        """X as a C-ordered float64 array, or a clear error.
+
+        ``check_range=False`` leaves out the NaN/inf/magnitude scan, for
+        callers whose own pass over X checks the same (the binary moments).
+        """
         check_is_fitted(self, "coef_")
         _reject_non_numeric_frame(X)
         _reject_unusable_array(X)
         X = validate_data(
             self, X, reset=False, dtype=np.float64, order="C", ensure_all_finite=False
         )
-        _check_magnitude(X, per_column=False)
+        if check_range:
+            _check_magnitude(X, per_column=False)
         return X
 
     # -- naming ------------------------------------------------------------
@@ -601,6 +608,30 @@ class GaussianPosteriorClassifier(LinearClassifierBase):
         q, d = self.coef_.shape
         return LinearDesign(np.empty((0, d)), q, self.fit_intercept)
 
+    def _latent(self, X, make_chunk=None):
+        """Validate X and return its latent moments (see ``logit_moments``).
+
+        Binary models check X's range (NaN, inf, magnitude) inside their
+        compiled moment pass, which reads X once instead of twice; should
+        the check fail, the usual scan runs and raises its error.
+        ``make_chunk(n)``, binary only, is called with the validated row
+        count and returns the ``chunk`` callback of
+        ``GaussianPosterior.binary_moments``.
+        """
+        check_is_fitted(self, "coef_")
+        design = self._design_for_predict()
+        if design.q != 1:
+            return self._posterior.latent_moments(design, self._validate_predict_data(X))
+        X = self._validate_predict_data(X, check_range=False)
+        chunk = None if make_chunk is None else make_chunk(X.shape[0])
+        mean, var, in_range = self._posterior.binary_moments(
+            design, X, limit=_MAX_ABS_FEATURE, chunk=chunk
+        )
+        if not in_range:
+            _check_magnitude(X, per_column=False)  # raises, naming the problem
+            raise ValueError("X has NaN, infinite or too large values.")  # pragma: no cover
+        return mean, var
+
     @dask_aware
     def logit_moments(self, X):
         """Posterior mean and (co)variance of the latent linear predictor.
@@ -615,8 +646,7 @@ class GaussianPosteriorClassifier(LinearClassifierBase):
         var : ndarray of shape (n_samples,) (binary: variance) or
             (n_samples, K, K) (multiclass: covariance of the K predictors)
         """
-        X = self._validate_predict_data(X)
-        return self._posterior.latent_moments(self._design_for_predict(), X)
+        return self._latent(X)
 
     @dask_aware
     def decision_function(self, X):
@@ -626,11 +656,11 @@ class GaussianPosteriorClassifier(LinearClassifierBase):
         shape (n_samples,). Multiclass: the log predictive probabilities,
         shape (n_samples, K).
         """
-        X = self._validate_predict_data(X)
+        check_is_fitted(self, "coef_")
         design = self._design_for_predict()
         if self.predictive == "mc":
-            return self._mc_decision(design, X)
-        mean, var = self._posterior.latent_moments(design, X)
+            return self._mc_decision(design, self._validate_predict_data(X))
+        mean, var = self._latent(X)
         if design.q == 1:
             if self.predictive == "map":
                 # The plug-in is the predictive with zero variance; the hook
@@ -645,17 +675,21 @@ class GaussianPosteriorClassifier(LinearClassifierBase):
     def predict_proba(self, X):
         """Predictive class probabilities, shape (n_samples, n_classes); rows sum to 1.
 
-        Binary models with a Gaussian-moment predictive finish each chunk's
-        probabilities as soon as its latent moments are computed, in one pass
-        over X; the values are those of the generic path,
-        ``expit(decision_function(X))``.
+        Binary models with a Gaussian-moment predictive finish each piece's
+        probabilities on the worker threads as soon as its latent moments
+        are computed, in one pass over X; the values are those of the
+        generic path, ``expit(decision_function(X))``.
         """
         check_is_fitted(self, "coef_")
         if self.coef_.shape[0] != 1 or self.predictive == "mc":
             return super().predict_proba(X)
-        X = self._validate_predict_data(X)
-        P = np.empty((X.shape[0], 2))
         plug_in = self.predictive == "map"
+        P = None
+
+        def make_chunk(n):
+            nonlocal P
+            P = np.empty((n, 2))
+            return finish
 
         def finish(mean, var, start, stop):
             scores = self._binary_decision(mean, np.zeros_like(var) if plug_in else var)
@@ -663,7 +697,7 @@ class GaussianPosteriorClassifier(LinearClassifierBase):
             np.negative(scores, out=scores)
             expit(scores, out=P[start:stop, 0])
 
-        self._posterior.latent_moments(self._design_for_predict(), X, chunk=finish)
+        self._latent(X, make_chunk)
         return P
 
     def _coef_draws(self, n_draws, random_state):
@@ -724,13 +758,14 @@ class GaussianPosteriorClassifier(LinearClassifierBase):
             ``n_draws`` posterior draws (seeded by ``random_state``).
         """
         level = check_level(level)
-        X = self._validate_predict_data(X)
+        check_is_fitted(self, "coef_")
         design = self._design_for_predict()
         z = norm.ppf(0.5 + level / 2.0)
         if design.q == 1:
-            mean, var = self._posterior.latent_moments(design, X)
+            mean, var = self._latent(X)
             half = z * np.sqrt(var)
             return self._binary_link(mean - half), self._binary_link(mean + half)
+        X = self._validate_predict_data(X)
         draws = self._coef_draws(self.n_draws, self.random_state)
         probs = self._mc_class_probs(design, X, draws)
         alpha = (1.0 - level) / 2.0

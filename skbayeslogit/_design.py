@@ -113,7 +113,7 @@ def task_span(n, rows):
 _SERIAL_WORK = 2e7  # flops below which a pass runs in the calling thread (~1 ms)
 
 
-def _map_tasks(func, tasks, fold=None, work=None):
+def _map_tasks(func, tasks, fold=None, work=None, blas=True):
     """``[func(*t) for t in tasks]``, spread over threads when it pays.
 
     ``work``, the pass's approximate flop count, keeps small passes in the
@@ -130,7 +130,9 @@ def _map_tasks(func, tasks, fold=None, work=None):
     most ``_MAX_WORKERS``). Many small multi-threaded BLAS calls synchronise
     their threads on every call, which costs dearly on a busy machine; whole
     tasks per thread do not. The results come back in task order, so their
-    sum does not depend on scheduling.
+    sum does not depend on scheduling. ``blas=False`` says the tasks make
+    no BLAS calls (compiled kernels only): BLAS's thread count is then left
+    alone.
     """
     global _pool, _pool_workers
     held = getattr(_held, "threads", None)
@@ -151,7 +153,7 @@ def _map_tasks(func, tasks, fold=None, work=None):
             _pool = ThreadPoolExecutor(max_workers=workers, thread_name_prefix="skbl")
             _pool_workers = workers
         pool = _pool
-    if held is not None:
+    if held is not None or not blas:
         return _collect(pool.map(lambda t: func(*t), tasks), fold)
     with _blas_controller().limit(limits=1, user_api="blas"):
         return _collect(pool.map(lambda t: func(*t), tasks), fold)

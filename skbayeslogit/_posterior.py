@@ -17,7 +17,9 @@ import numpy as np
 from scipy.linalg import solve_triangular
 
 _ROWS_PER_CHUNK = 65536
-_CHUNK_BYTES = 2 << 20  # binary moments: chunk of X R^T per multi-threaded product
+# Binary moments: rows per piece finished by the caller's ``chunk`` (its
+# moments, 128 KiB each, are still in L2).
+_FINISH_ROWS = 16384
 
 
 class GaussianPosterior:
@@ -66,23 +68,24 @@ class GaussianPosterior:
         design : LinearDesign
             Supplies the parameter layout (q, d, intercept).
         X : ndarray of shape (n, d)
+        chunk : callable, optional
+            Binary only: ``chunk(mean_c, var_c, start, stop)`` is called on
+            each piece's moments as soon as they are computed, while they
+            are in cache (see :meth:`binary_moments`).
 
         Returns
         -------
         mean : ndarray of shape (n,) if q == 1 else (n, q)
         var : ndarray of shape (n,) if q == 1 else (n, q, q)
             Variance (binary) or covariance matrix (multiclass) per row.
-        chunk : callable, optional
-            Binary only: ``chunk(mean_c, var_c, start, stop)`` is called on
-            each chunk's moments as soon as they are computed, while they
-            are in cache (the predictive probability is finished there).
         """
         q, d, nc = design.q, design.d, design.n_coef
         if q == 1:
-            return self._latent_moments_binary(design, X, chunk)
+            mean, var, _ = self.binary_moments(design, X, chunk=chunk)
+            return mean, var
         mean = design.linear_predictor(self.mean, X)
         n = X.shape[0]
-        var = np.empty(n) if q == 1 else np.empty((n, q, q))
+        var = np.empty((n, q, q))
         R = self.R
         for start in range(0, n, _ROWS_PER_CHUNK):
             Xc = X[start : start + _ROWS_PER_CHUNK]
@@ -94,53 +97,64 @@ class GaussianPosterior:
                 if design.fit_intercept:
                     Uk += R[:, nc + k]
                 U.append(Uk)
-            if q == 1:
-                var[start : start + len(Xc)] = np.einsum("ij,ij->i", U[0], U[0])
-            else:
-                block = var[start : start + len(Xc)]
-                for k in range(q):
-                    for l in range(k, q):
-                        c = np.einsum("ij,ij->i", U[k], U[l])
-                        block[:, k, l] = c
-                        block[:, l, k] = c
+            block = var[start : start + len(Xc)]
+            for k in range(q):
+                for l in range(k, q):
+                    c = np.einsum("ij,ij->i", U[k], U[l])
+                    block[:, k, l] = c
+                    block[:, l, k] = c
         return mean, var
 
-    def _latent_moments_binary(self, design, X, chunk=None):
-        """q == 1: one matrix product per chunk gives both moments.
+    def binary_moments(self, design, X, limit=np.inf, chunk=None):
+        """q == 1: latent mean and variance of every row, and a range check.
 
-        With x~ = (x, 1) (intercept) and M = [R_x^T, m_x] (d, p + 1),
-        x^T M + [r_b, m_b] = (R x~, m^T x~): the first p entries square-sum to
-        the variance, the last is the mean. Chunks of ~2 MiB of the product
-        are computed by BLAS with its own threads and finished in the calling
-        thread. (Worker threads with single-threaded BLAS, as in the fit's
-        passes, were 25% slower here whenever the caller had just made a
-        multi-threaded BLAS call: OpenBLAS's idle threads keep spinning for
-        a while after each call and take a core from the workers. Measured
-        at n = 1e6, d = 20: 63 ms against 49 ms, interleaved with
-        scikit-learn's predict_proba.)
+        One compiled pass over X (``_moments_kernel``) gives both moments,
+        mean = m^T x~ and var = ||R x~||^2 with x~ = (x, 1) (intercept) or
+        x, and checks every entry read: ``|x| <= limit``, NaN failing. Spans
+        of rows run on the design's worker threads; ``chunk`` finishes each
+        piece of ``_FINISH_ROWS`` rows there, while its moments are in cache.
+        Pieces with a failed check are not passed to ``chunk``.
+
+        Parameters
+        ----------
+        design : LinearDesign
+        X : ndarray of shape (n, d), float64, C order
+        limit : float, default=inf
+            Largest magnitude allowed in X.
+        chunk : callable, optional
+            ``chunk(mean_c, var_c, start, stop)``; called from worker
+            threads, on disjoint row ranges.
+
+        Returns
+        -------
+        mean, var : ndarray of shape (n,)
+        in_range : bool
+            False when some entry of X is NaN or beyond ``limit`` (the
+            moments are then not to be used).
         """
-        d, n = design.d, X.shape[0]
-        R = self.R
-        p = R.shape[0]
-        M = np.empty((d, p + 1))
-        M[:, :p] = R[:, :d].T
-        M[:, p] = self.mean[:d]
-        shift = np.zeros(p + 1)
-        if design.fit_intercept:
-            shift[:p] = R[:, d]
-            shift[p] = self.mean[d]
+        from ._design import _map_tasks, task_span
+        from ._moments_kernel import BinaryMomentPlan
+
+        plan = getattr(self, "_moment_plan", None)
+        if plan is None or plan.d != design.d:
+            plan = self._moment_plan = BinaryMomentPlan(self.R, self.mean, design.d)
+        X = np.ascontiguousarray(X, dtype=np.float64)
+        n = X.shape[0]
         mean = np.empty(n)
         var = np.empty(n)
-        rows = max(256, _CHUNK_BYTES // (8 * (p + 1)))
-        U = np.empty((min(rows, n), p + 1))
-        for start in range(0, n, rows):
-            stop = min(start + rows, n)
-            Uc = U[: stop - start]
-            np.matmul(X[start:stop], M, out=Uc)
-            Uc += shift
-            mean[start:stop] = Uc[:, p]
-            Ur = Uc[:, :p]
-            np.einsum("ij,ij->i", Ur, Ur, out=var[start:stop])
-            if chunk is not None:
-                chunk(mean[start:stop], var[start:stop], start, stop)
-        return mean, var
+        rows = min(_FINISH_ROWS, max(n, 1))
+        span = task_span(n, rows)
+
+        def task(first, last):
+            ok = True
+            for start in range(first, last, rows):
+                stop = min(start + rows, last)
+                if plan.run(X[start:stop], mean[start:stop], var[start:stop], limit):
+                    ok = False
+                elif chunk is not None:
+                    chunk(mean[start:stop], var[start:stop], start, stop)
+            return ok
+
+        tasks = [(a, min(a + span, n)) for a in range(0, n, span)]
+        in_range = all(_map_tasks(task, tasks, work=float(n) * plan.work, blas=False))
+        return mean, var, in_range

@@ -231,6 +231,29 @@ def test_predict_rejects_with_a_specific_message(reference, name, case, Xb, matc
         getattr(reference[name], method)(Xb)
 
 
+@pytest.mark.parametrize("name", ["laplace", "probit"])
+@pytest.mark.parametrize(
+    ("value", "match"),
+    [
+        (np.nan, "Input X contains NaN"),
+        (np.inf, "Input X contains infinity"),
+        (1e300, "magnitude 1e\\+300"),
+    ],
+    ids=["nan", "inf", "huge"],
+)
+@pytest.mark.parametrize(
+    "method", ["predict_proba", "decision_function", "logit_moments", "predict_interval"]
+)
+def test_binary_moment_pass_rejects_bad_values_anywhere(reference, name, value, match, method):
+    """The binary Gaussian-posterior predictions check X inside their moment
+    pass (on worker threads for large X): a bad value in the last row of
+    200,000 is named just as in a small X."""
+    big = np.tile(X, (200_000 // N, 1))
+    big[-1, 2] = value
+    with pytest.raises(ValueError, match=match):
+        getattr(reference[name], method)(big)
+
+
 FRAME_PREDICT_ERRORS = [
     (
         "renamed column",

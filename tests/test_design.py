@@ -145,6 +145,7 @@ def test_one_compiled_signature_per_kernel():
 
     from skbayeslogit import LaplaceLogisticClassifier
     from skbayeslogit import _logistic_kernel as lk
+    from skbayeslogit import _moments_kernel as mk
     from skbayeslogit import _softmax_kernel as sk
 
     # 12,000 rows: enough for the subsample start, so that the gradient-only
@@ -159,8 +160,75 @@ def test_one_compiled_signature_per_kernel():
         for a in frozen:
             a.setflags(write=False)
         for args in ((X, y, w), frozen, (pd.DataFrame(X), pd.Series(y).astype(str), w)):
-            LaplaceLogisticClassifier(prior_scale=1.0).fit(*args[:2], sample_weight=args[2])
+            model = LaplaceLogisticClassifier(prior_scale=1.0)
+            model.fit(*args[:2], sample_weight=args[2])
+            if K == 2:
+                model.predict_proba(args[0])
     dispatchers = [lk._pointwise_kernel.dispatcher(), lk._span_kernel.dispatcher()]
-    dispatchers += [sk._softmax_rows, sk._pack_outer]
+    dispatchers += [sk._softmax_rows, sk._pack_outer, mk._moments_kernel.dispatcher()]
     for dispatcher in dispatchers:
         assert dispatcher is not None and len(dispatcher.signatures) == 1, dispatcher
+
+
+def _posterior(p, seed):
+    """A Gaussian posterior with a random, well-conditioned precision (p x p)."""
+    from skbayeslogit._posterior import GaussianPosterior
+
+    rng = np.random.default_rng(seed)
+    A = rng.normal(size=(p, p))
+    precision = A @ A.T + p * np.eye(p)
+    return GaussianPosterior(rng.normal(size=p), np.linalg.cholesky(precision))
+
+
+@pytest.mark.parametrize("fit_intercept", [True, False])
+@pytest.mark.parametrize("d", [1, 7, 30])
+def test_binary_moments_match_the_definition(fit_intercept, d, threaded):
+    """mean = m^T x~ and var = x~^T Sigma x~ for every row, with Sigma =
+    H^{-1} formed by numpy's inverse; 70,001 rows make uneven pieces and
+    tasks, and d = 1, 7, 30 cover each remainder of the kernel's groups of
+    four columns. Each value is a sum of at most 31 (mean) or 31^2 (var,
+    on this side) terms: 1e-12 of the largest is ~4,500 eps."""
+    n = 70_001
+    post = _posterior(d + int(fit_intercept), seed=d)
+    X = np.random.default_rng(1).normal(size=(n, d))
+    X_tilde = np.hstack([X, np.ones((n, 1))]) if fit_intercept else X
+    sigma = np.linalg.inv(post.chol @ post.chol.T)
+    design = LinearDesign(np.empty((0, d)), 1, fit_intercept)
+    pieces = []
+    mean, var, in_range = post.binary_moments(
+        design, X, limit=1e10, chunk=lambda m, v, a, b: pieces.append((a, b))
+    )
+    assert in_range
+    _close(mean, X_tilde @ post.mean)
+    _close(var, np.einsum("ij,jk,ik->i", X_tilde, sigma, X_tilde))
+    # Every row finished exactly once.
+    covered = np.zeros(n, dtype=int)
+    for a, b in pieces:
+        covered[a:b] += 1
+    np.testing.assert_array_equal(covered, 1)
+
+
+@pytest.mark.parametrize("value", [np.nan, np.inf, -np.inf, 2e10])
+def test_binary_moments_flag_bad_values_and_skip_their_piece(value, threaded):
+    """A NaN, an infinity or a value beyond the limit, in the last row, is
+    reported; its piece is not handed to ``chunk``, the others are."""
+    from skbayeslogit._posterior import _FINISH_ROWS
+
+    d, n = 4, 3 * _FINISH_ROWS + 5
+    post = _posterior(d + 1, seed=3)
+    X = np.random.default_rng(2).normal(size=(n, d))
+    design = LinearDesign(np.empty((0, d)), 1, True)
+    X[-1, 2] = value
+    finished = []
+    _, _, in_range = post.binary_moments(
+        design, X, limit=1e10, chunk=lambda m, v, a, b: finished.append((a, b))
+    )
+    assert not in_range
+    covered = np.zeros(n, dtype=int)
+    for a, b in finished:
+        covered[a:b] += 1
+    # The rows before the last piece, each once; none of the last piece.
+    missing = np.flatnonzero(covered == 0)
+    assert missing[-1] == n - 1 and len(missing) <= _FINISH_ROWS
+    np.testing.assert_array_equal(np.diff(missing), 1)
+    assert covered.max() == 1
