@@ -113,6 +113,15 @@ def task_span(n, rows):
 _SERIAL_WORK = 2e7  # flops below which a pass runs in the calling thread (~1 ms)
 
 
+def _worker_count(n_tasks, work=None):
+    """How many threads ``_map_tasks`` uses for ``n_tasks`` tasks of ``work`` flops."""
+    held = getattr(_held, "threads", None)
+    threads = held if held is not None else _blas_threads()
+    if work is not None and work < _SERIAL_WORK:
+        return 1
+    return max(1, min(threads, _MAX_WORKERS, n_tasks))
+
+
 def _map_tasks(func, tasks, fold=None, work=None, blas=True):
     """``[func(*t) for t in tasks]``, spread over threads when it pays.
 
@@ -136,10 +145,7 @@ def _map_tasks(func, tasks, fold=None, work=None, blas=True):
     """
     global _pool, _pool_workers
     held = getattr(_held, "threads", None)
-    threads = held if held is not None else _blas_threads()
-    workers = min(threads, _MAX_WORKERS, len(tasks))
-    if work is not None and work < _SERIAL_WORK:
-        workers = 1
+    workers = _worker_count(len(tasks), work)
     if workers <= 1:
         # One thread, or one task: no thread-count change. Lowering and
         # restoring the BLAS thread count around a small pass made the next
@@ -226,8 +232,9 @@ class LinearDesign:
             likelihood costs, to decide whether the pass is threaded),
             ``wants_rows`` (then it is called as ``loss_grad(y, eta, w,
             rows=(start, stop))`` with the span's row range) and, for one
-            output, ``gradient_span(X, coef, b0, y, w, eta)``, a fused pass
-            over a whole span of rows that replaces the blocks.
+            output, ``gradient_span(X, coef, b0, y, w, eta, threaded)``,
+            a pass over a whole span of rows that replaces the blocks
+            (``threaded``: whether it runs on the worker threads).
         y, w : ndarray of shape (n,)
         theta : ndarray of shape (p_full,)
 
@@ -241,11 +248,13 @@ class LinearDesign:
         eta = np.empty(self.n) if self.q == 1 else np.empty((self.n, self.q))
         rows = min(self.block_rows, self.n)
         span = task_span(self.n, rows)
-        tasks = [
-            (likelihood, y, w, W, b, eta, start, min(start + span, self.n), rows)
-            for start in range(0, self.n, span)
-        ]
+        starts = range(0, self.n, span)
         work = self.n * (4.0 * self.p_full + getattr(likelihood, "work_per_row", 0.0))
+        threaded = _worker_count(len(starts), work) > 1
+        tasks = [
+            (likelihood, y, w, W, b, eta, start, min(start + span, self.n), rows, threaded)
+            for start in starts
+        ]
         parts = _map_tasks(self._gradient_task, tasks, work=work)
         loss = 0.0
         gW = np.zeros((self.q, self.d))
@@ -259,18 +268,19 @@ class LinearDesign:
             grad = np.concatenate([grad, gb])
         return loss, grad, eta
 
-    def _gradient_task(self, likelihood, y, w, W, b, eta, first, last, rows):
+    def _gradient_task(self, likelihood, y, w, W, b, eta, first, last, rows, threaded):
         """Loss, coefficient gradient (q, d) and intercept gradient (q,) of rows [first, last)."""
         binary = self.q == 1
-        fused = getattr(likelihood, "gradient_span", None)
-        if binary and fused is not None and self.X.flags.c_contiguous:
-            loss, gx, gb = fused(
+        span_pass = getattr(likelihood, "gradient_span", None)
+        if binary and span_pass is not None and self.X.flags.c_contiguous:
+            loss, gx, gb = span_pass(
                 np.asarray(self.X[first:last]),
                 W[0],
                 b[0] if self.fit_intercept else 0.0,
                 y[first:last],
                 w[first:last],
                 eta[first:last],
+                threaded=threaded,
             )
             return loss, gx[None, :], np.array([gb])
         wants_rows = getattr(likelihood, "wants_rows", False)

@@ -64,7 +64,7 @@ def threaded(request, monkeypatch):
 @pytest.mark.parametrize("fit_intercept", [True, False])
 @pytest.mark.parametrize("order", ["C", "F"])
 def test_binary_pass_matches_direct_formula(fit_intercept, order, threaded):
-    """C-ordered X takes the fused gradient kernel, F-ordered the blocks."""
+    """C-ordered X takes the span gradient pass, F-ordered the blocks."""
     n, d = 3_001, 7
     X, y, w = _data(n, d, 2)
     design = LinearDesign(np.asarray(X, order=order), 1, fit_intercept, block_rows=97)
@@ -139,7 +139,7 @@ def test_softmax_packed_hessian_factor_is_the_upper_triangle():
     np.testing.assert_allclose(loss, -np.sum(w * log_p), rtol=1e-14)
 
 
-def test_one_compiled_signature_per_kernel():
+def test_one_compiled_signature_per_kernel(monkeypatch):
     """Writable, read-only and pandas inputs all reach the same machine code."""
     import pandas as pd
 
@@ -149,7 +149,9 @@ def test_one_compiled_signature_per_kernel():
     from skbayeslogit import _softmax_kernel as sk
 
     # 12,000 rows: enough for the subsample start, so that the gradient-only
-    # passes (the fused span kernel) run too.
+    # passes (gradient_span) run too; on worker threads, so that its compiled
+    # version does.
+    monkeypatch.setattr(_design, "_SERIAL_WORK", 0.0)
     n = 12_000
     rng = np.random.default_rng(4)
     X = rng.normal(size=(n, 3))
