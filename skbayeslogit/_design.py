@@ -303,10 +303,10 @@ class LinearDesign:
                 lb, g = likelihood.loss_grad(y[start:stop], eb, w[start:stop])
             loss += lb
             if binary:
-                gW[0] += Xb.T @ g
+                gW[0] += np.dot(Xb.T, g)
                 gb[0] += float(np.sum(g))
             else:
-                gW += g.T @ Xb
+                gW += np.dot(g.T, Xb)
                 gb += g.sum(axis=0)
         return loss, gW, gb
 
@@ -357,10 +357,14 @@ class LinearDesign:
         A = [s * X_b, s] (the intercept column is s itself) has
         A^T A = [[X_b^T diag(h) X_b, X_b^T h], [h^T X_b, sum h]]: slopes,
         slope-intercept and intercept entries from one BLAS call (numpy's
-        ``A.T @ A``, which it runs as a symmetric rank-k update with the GIL
-        released; scipy's ``dsyrk`` wrapper holds the GIL, so two workers
-        ran it one after the other, and its orientation was 1.3x slower
-        measured on blocks of 2,621 x 51). A is one block-sized buffer per
+        ``np.dot(A.T, A)``, which it runs as a symmetric rank-k update with
+        the GIL released). Products on worker threads go through ``np.dot``,
+        not ``@``: numpy 2.4's matmul keeps the GIL when the result has fewer
+        than about 500 entries (measured: two threads ran 6,553 x 21 blocks'
+        ``A.T @ A`` one after the other, and ``np.dot`` 1.96x as fast as one
+        thread), which is every Hessian up to d = 21 and every gradient.
+        scipy's ``dsyrk`` wrapper holds the GIL too, and its orientation was
+        1.3x slower on blocks of 2,621 x 51. A is one block-sized buffer per
         task, never a copy of X. Tasks of consecutive blocks (``task_span``)
         run on worker threads (see ``_map_tasks``) and are summed in row
         order.
@@ -413,14 +417,14 @@ class LinearDesign:
                     eb += b0
             lb, g, h = likelihood.derivatives(y[start:stop], eb, w[start:stop])
             loss += lb
-            gx += Xb.T @ g
+            gx += np.dot(Xb.T, g)
             sb = np.sqrt(h, out=s[:m])
             A = buf[:m]
             np.multiply(Xb, sb[:, None], out=A[:, :d])
             if self.fit_intercept:
                 gb += float(np.sum(g))
                 A[:, d] = sb
-            hess += np.matmul(A.T, A, out=product)
+            hess += np.dot(A.T, A, out=product)
         return loss, gx, gb, hess
 
     def _multi_task(self, likelihood, y, w, W, b, eta, fill, first, last, rows):
@@ -459,7 +463,7 @@ class LinearDesign:
                 eta[start:stop] += b
             lb, g, h = likelihood.derivatives(y[start:stop], eta[start:stop], w[start:stop])
             loss += lb
-            grad[:nc] += (g.T @ Xb).ravel()
+            grad[:nc] += np.dot(g.T, Xb).ravel()
             if self.fit_intercept:
                 grad[nc:] += g.sum(axis=0)
             for s0 in range(0, stop - start, sub):
