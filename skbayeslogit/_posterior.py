@@ -136,7 +136,8 @@ class GaussianPosterior:
         from ._moments_kernel import BinaryMomentPlan
 
         plan = getattr(self, "_moment_plan", None)
-        if plan is None or plan.d != design.d:
+        if plan is None:
+            # Fixed by the posterior: built on the first prediction.
             plan = self._moment_plan = BinaryMomentPlan(self.R, self.mean, design.d)
         X = np.ascontiguousarray(X, dtype=np.float64)
         n = X.shape[0]

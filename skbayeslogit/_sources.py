@@ -134,12 +134,14 @@ def _value_grad_piece(X, y, w, pointwise, theta, q, fit_intercept):
     X = _as_block(X)
     eta = LinearDesign(X, q, fit_intercept).linear_predictor(theta)
     value, g_eta = pointwise.value_grad(y, eta, w)
+    # np.dot, not @: dask may run pieces on threads, and matmul keeps the
+    # GIL for results this small (see _design._loss_grad_hess_binary).
     if q == 1:
-        parts = [[value], X.T @ g_eta]
+        parts = [[value], np.dot(X.T, g_eta)]
         if fit_intercept:
             parts.append([g_eta.sum()])
     else:
-        parts = [[value], (g_eta.T @ X).ravel()]
+        parts = [[value], np.dot(g_eta.T, X).ravel()]
         if fit_intercept:
             parts.append(g_eta.sum(axis=0))
     return np.concatenate(parts)
