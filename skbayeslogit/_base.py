@@ -34,6 +34,7 @@ from sklearn.utils.validation import _check_sample_weight, check_is_fitted, vali
 from ._design import LinearDesign, passes_own_threads
 from ._newton import NewtonProblem, solve_map
 from ._posterior import GaussianPosterior
+from ._softmax_kernel import moderated_softmax_rows
 from ._sources import dask_aware, fit_design, is_out_of_core
 from ._special import expit
 from ._validation import (
@@ -190,7 +191,7 @@ class LinearClassifierBase(ClassifierMixin, BaseEstimator):
         scores = self.decision_function(X)
         if scores.ndim == 1:
             return np.column_stack([-np.logaddexp(0, scores), -np.logaddexp(0, -scores)])
-        return scores - logsumexp(scores, axis=1, keepdims=True)
+        return _log_normalise(scores)
 
     @dask_aware
     def predict_proba(self, X):
@@ -199,7 +200,7 @@ class LinearClassifierBase(ClassifierMixin, BaseEstimator):
         if scores.ndim == 1:
             p1 = expit(scores)
             return np.column_stack([expit(-scores), p1])
-        P = np.exp(scores - logsumexp(scores, axis=1, keepdims=True))
+        P = np.exp(_log_normalise(scores))
         return P / P.sum(axis=1, keepdims=True)
 
 
@@ -313,37 +314,16 @@ def free_parameter_map(design, slope_prior, intercept_prior):
     return None
 
 
-def _moderated_softmax_log(mean, cov):
-    """Log of a moderated softmax, the multiclass analogue of sigma(kappa m).
+def _row_logsumexp(z):
+    """log sum exp over the last axis, shifted by its maximum."""
+    top = z.max(axis=-1, keepdims=True)
+    e = np.exp(z - top)
+    return np.log(e.sum(axis=-1)) + top[..., 0]
 
-    Approximates E[softmax(eta)]_k for eta ~ N(mean, cov) by the pairwise
-    mean-field form of Lu, Ie & Sha, "Mean-field approximation to
-    Gaussian-softmax integral with application to uncertainty estimation"
-    (arXiv:2006.07584, 2020):
 
-        p_k ~ 1 / sum_j exp(-(m_k - m_j) / sqrt(1 + pi/8 * s_kj)),
-
-    with s_kj the variance of eta_k - eta_j (their mean-field version uses
-    s_kk + s_jj; using the variance of the difference keeps the posterior
-    correlation between classes, and for K = 2 reduces exactly to the binary
-    sigma(kappa(v) m)). The K values are then renormalised to sum to one.
-
-    Parameters
-    ----------
-    mean : ndarray (n, K)
-    cov : ndarray (n, K, K)
-
-    Returns
-    -------
-    ndarray (n, K): normalised log probabilities.
-    """
-    diag = np.einsum("nkk->nk", cov)
-    s = diag[:, :, None] + diag[:, None, :] - 2.0 * cov
-    s = np.maximum(s, 0.0)
-    diff = mean[:, :, None] - mean[:, None, :]
-    # log p_k = -logsumexp_j(-(m_k - m_j) / sqrt(1 + pi s_kj / 8))
-    logp = -logsumexp(-diff / np.sqrt(1.0 + np.pi * s / 8.0), axis=2)
-    return logp - logsumexp(logp, axis=1, keepdims=True)
+def _log_normalise(logp):
+    """logp - logsumexp(logp) along the rows of an (n, K) array."""
+    return logp - _row_logsumexp(logp)[:, None]
 
 
 class GaussianPosteriorClassifier(LinearClassifierBase):
@@ -660,16 +640,47 @@ class GaussianPosteriorClassifier(LinearClassifierBase):
         design = self._design_for_predict()
         if self.predictive == "mc":
             return self._mc_decision(design, self._validate_predict_data(X))
-        mean, var = self._latent(X)
-        if design.q == 1:
+        if design.q > 1:
             if self.predictive == "map":
-                # The plug-in is the predictive with zero variance; the hook
-                # maps it to log-odds for links other than the logit.
-                return self._binary_decision(mean, np.zeros_like(var))
-            return self._binary_decision(mean, var)
+                X = self._validate_predict_data(X)
+                return _log_normalise(design.linear_predictor(self._posterior.mean, X))
+            return self._moderated_multiclass(X)
+        mean, var = self._latent(X)
         if self.predictive == "map":
-            return mean - logsumexp(mean, axis=1, keepdims=True)
-        return _moderated_softmax_log(mean, var)
+            # The plug-in is the predictive with zero variance; the hook
+            # maps it to log-odds for links other than the logit.
+            return self._binary_decision(mean, np.zeros_like(var))
+        return self._binary_decision(mean, var)
+
+    def _moderated_multiclass(self, X):
+        """Log of the moderated softmax, the multiclass analogue of sigma(kappa m).
+
+        Approximates E[softmax(eta)]_k for eta ~ N(mean, cov) by the
+        pairwise mean-field form of Lu, Ie & Sha, "Mean-field approximation
+        to Gaussian-softmax integral with application to uncertainty
+        estimation" (arXiv:2006.07584, 2020):
+
+            p_k ~ 1 / sum_j exp(-(m_k - m_j) / sqrt(1 + pi/8 * s_kj)),
+
+        with s_kj the variance of eta_k - eta_j (their mean-field version
+        uses s_kk + s_jj; using the variance of the difference keeps the
+        posterior correlation between classes, and for K = 2 reduces exactly
+        to the binary sigma(kappa(v) m)). The K values are then renormalised
+        to sum to one. Computed piece by piece (``moderated_softmax_rows``),
+        never holding the (n, K, K) covariances of all rows.
+
+        Returns
+        -------
+        ndarray of shape (n_samples, K): normalised log probabilities.
+        """
+        X = self._validate_predict_data(X)
+        out = np.empty((X.shape[0], self.coef_.shape[0]))
+
+        def finish(mean_c, pairs_c, start, stop):
+            moderated_softmax_rows(mean_c, pairs_c, out[start:stop])
+
+        self._posterior.multiclass_moments(self._design_for_predict(), X, finish)
+        return out
 
     @dask_aware
     def predict_proba(self, X):

@@ -16,7 +16,9 @@ Pattern Recognition and Machine Learning (2006), Sec. 4.4-4.5.
 import numpy as np
 from scipy.linalg import solve_triangular
 
-_ROWS_PER_CHUNK = 65536
+# Multiclass moments: rows per piece (its outer products, 66 x 2048 doubles
+# at d = 10, and the K x K covariances stay in L2).
+_MULTI_ROWS = 2048
 # Binary moments: rows per piece finished by the caller's ``chunk`` (its
 # moments, 128 KiB each, are still in L2).
 _FINISH_ROWS = 16384
@@ -79,31 +81,90 @@ class GaussianPosterior:
         var : ndarray of shape (n,) if q == 1 else (n, q, q)
             Variance (binary) or covariance matrix (multiclass) per row.
         """
-        q, d, nc = design.q, design.d, design.n_coef
-        if q == 1:
+        if design.q == 1:
             mean, var, _ = self.binary_moments(design, X, chunk=chunk)
             return mean, var
-        mean = design.linear_predictor(self.mean, X)
-        n = X.shape[0]
+        n, q = X.shape[0], design.q
+        mean = np.empty((n, q))
         var = np.empty((n, q, q))
-        R = self.R
-        for start in range(0, n, _ROWS_PER_CHUNK):
-            Xc = X[start : start + _ROWS_PER_CHUNK]
-            # U_k = X R_k^T + r_k: row i of U_k is R J_k(x_i)^T, whose inner
-            # products give Cov(eta_k, eta_l) at x_i.
-            U = []
-            for k in range(q):
-                Uk = Xc @ R[:, k * d : (k + 1) * d].T
-                if design.fit_intercept:
-                    Uk += R[:, nc + k]
-                U.append(Uk)
-            block = var[start : start + len(Xc)]
-            for k in range(q):
-                for l in range(k, q):
-                    c = np.einsum("ij,ij->i", U[k], U[l])
-                    block[:, k, l] = c
-                    block[:, l, k] = c
+
+        ku, lu = np.triu_indices(q)
+
+        def keep(mean_c, pairs_c, start, stop):
+            mean[start:stop] = mean_c
+            var[start:stop, ku, lu] = pairs_c
+            var[start:stop, lu, ku] = pairs_c
+
+        self.multiclass_moments(design, X, keep)
         return mean, var
+
+    def multiclass_moments(self, design, X, chunk):
+        """q > 1: latent means and covariances, piece by piece.
+
+        Cov(eta_k, eta_l) at x~ is x~^T S_kl x~ with S_kl the (k, l) block
+        of the covariance; summed over a <= b it is one product of the row's
+        packed outer products x~_a x~_b (``pack_outer``) with a fixed
+        (n_outer, K(K+1)/2) matrix, so a piece of rows takes one GEMM. The
+        former loop (K products of X with R's blocks, then K(K+1)/2 row-wise
+        sums) took 0.7 s for n = 1e5, K = 10, d = 10.
+
+        Parameters
+        ----------
+        design : LinearDesign
+        X : ndarray of shape (n, d), float64, C order
+        chunk : callable
+            ``chunk(mean_c, pairs_c, start, stop)`` with ``mean_c`` (m, K)
+            and ``pairs_c`` (m, K(K+1)/2), the covariances Cov(eta_k, eta_l)
+            for k <= l in ``np.triu_indices(K)`` order, of rows [start,
+            stop); called from worker threads on disjoint ranges.
+        """
+        from ._design import _map_tasks, task_span
+        from ._softmax_kernel import pack_outer
+
+        d = design.d
+        dx = d + 1 if design.fit_intercept else d
+        weights = self._pair_weights(design)
+        W, b = design.split(self.mean)
+        n = X.shape[0]
+        rows = min(_MULTI_ROWS, max(n, 1))
+        span = task_span(n, rows)
+
+        def task(first, last):
+            x_t = np.ones((dx, rows))  # the intercept row stays 1
+            outer_t = np.empty((weights.shape[0], rows))
+            for start in range(first, last, rows):
+                stop = min(start + rows, last)
+                m = stop - start
+                Xc = X[start:stop]
+                x_t[:d, :m] = Xc.T
+                pack_outer(x_t, m, outer_t)
+                pairs = np.dot(outer_t[:, :m].T, weights)
+                chunk(np.dot(Xc, W.T) + b, pairs, start, stop)
+
+        tasks = [(a, min(a + span, n)) for a in range(0, n, span)]
+        _map_tasks(task, tasks, work=float(n) * weights.size)
+
+    def _pair_weights(self, design):
+        """(n_outer, K(K+1)/2): entry ((a, b), (k, l)) weighs x~_a x~_b in Cov(eta_k, eta_l)."""
+        cached = getattr(self, "_pair_weight_cache", None)
+        if cached is not None:
+            return cached
+        q, d, nc = design.q, design.d, design.n_coef
+        dx = d + 1 if design.fit_intercept else d
+        S = self.cov
+        ku, lu = np.triu_indices(q)
+        au, bu = np.triu_indices(dx)
+
+        def param(k, a):
+            # Parameter index of (class k, column a); column d is the intercept.
+            return np.where(a < d, k * d + a, nc + k)
+
+        ka, lb = param(ku[None, :], au[:, None]), param(lu[None, :], bu[:, None])
+        kb, la = param(ku[None, :], bu[:, None]), param(lu[None, :], au[:, None])
+        # a < b: both orders of the pair (S_kl is not symmetric for k != l).
+        weights = S[ka, lb] + np.where((au != bu)[:, None], S[kb, la], 0.0)
+        self._pair_weight_cache = weights
+        return weights
 
     def binary_moments(self, design, X, limit=np.inf, chunk=None):
         """q == 1: latent mean and variance of every row, and a range check.

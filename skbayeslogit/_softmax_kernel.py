@@ -20,7 +20,19 @@ import) and cached on disk when a cache directory is writable (see
     column a, d + 1 calls per sub-block, which held the GIL between them and
     cost half as much as the GEMM itself at d = 50.
 
-Both run in the design's worker threads (``nogil``) on the rows of one task.
+``moderated_softmax_rows``
+    The moderated (probit-approximation) log predictive of a piece of rows
+    from their latent means and packed covariances (the formula is in
+    ``GaussianPosteriorClassifier._moderated_multiclass``): a compiled loop
+    for the K(K-1)/2 pairwise exponents (one square root each, over
+    contiguous buffers) spread with their signs and row shifts over K x K,
+    numpy's SIMD exp, and a compiled loop for the sums and the
+    renormalisation. The numpy version, five (n, K, K)
+    temporaries and reductions along their short last axis, took 160 ms for
+    n = 1e5, K = 10 on one thread; one compiled loop calling exp and sqrt
+    itself 109 ms.
+
+All run in the design's worker threads (``nogil``) on the rows of one task.
 """
 
 import numpy as np
@@ -72,6 +84,108 @@ def _pack_outer(x_t, m, out):  # pragma: no cover - runs compiled
             for i in range(m):
                 out[j, i] = x_t[a, i] * x_t[b, i]
             j += 1
+
+
+@jit()
+def _moderated_shifted(mean, pairs, pk, pj, pkk, pjj, pkj, z, top):  # pragma: no cover
+    # For the q-th class pair k = pk[q] < j = pj[q] (positions pkk, pjj, pkj
+    # of c_kk, c_jj, c_kj in ``pairs``): z_kj = -(m_k - m_j) / sqrt(1 + pi/8
+    # s_kj), s_kj = c_kk + c_jj - 2 c_kj; z_jk = -z_kj and z_kk = 0. Writes
+    # z[i, k, j] = z_kj - top[i, k], top the row maximum (>= 0 as z_kk = 0),
+    # so that sum_j exp(z[i, k, j]) lies in [1, K].
+    n, K = top.shape
+    n_pairs = pk.shape[0]
+    scale = np.pi / 8.0
+    diff = np.empty(n_pairs)
+    spread = np.empty(n_pairs)
+    for i in range(n):
+        c = pairs[i]
+        m = mean[i]
+        # Gathers first, so that the square roots and divisions below run
+        # over contiguous buffers (vectorised).
+        for q in range(n_pairs):
+            diff[q] = m[pj[q]] - m[pk[q]]
+            spread[q] = c[pkk[q]] + c[pjj[q]] - 2.0 * c[pkj[q]]
+        for q in range(n_pairs):
+            v = spread[q] if spread[q] > 0.0 else 0.0
+            diff[q] = diff[q] / np.sqrt(1.0 + scale * v)
+        zi = z[i]
+        ti = top[i]
+        for k in range(K):
+            ti[k] = 0.0
+            zi[k, k] = 0.0
+        for q in range(n_pairs):
+            k = pk[q]
+            j = pj[q]
+            zkj = diff[q]
+            zi[k, j] = zkj
+            zi[j, k] = -zkj
+            # Selects, not branches: the signs are random.
+            ti[k] = max(ti[k], zkj)
+            ti[j] = max(ti[j], -zkj)
+        for k in range(K):
+            t = ti[k]
+            for j in range(K):
+                zi[k, j] -= t
+
+
+@jit()
+def _moderated_finish(e, top, out):  # pragma: no cover - runs compiled
+    # e = exp(z - top) from numpy; log p_k = -(log sum_j e[i, k, j] + top),
+    # then renormalised: log p_k - logsumexp_l(log p_l).
+    n, K = top.shape
+    for i in range(n):
+        best = -np.inf
+        for k in range(K):
+            total = 0.0
+            for j in range(K):
+                total += e[i, k, j]
+            v = -(np.log(total) + top[i, k])
+            out[i, k] = v
+            if v > best:
+                best = v
+        total = 0.0
+        for k in range(K):
+            total += np.exp(out[i, k] - best)
+        shift = np.log(total) + best
+        for k in range(K):
+            out[i, k] -= shift
+
+
+def moderated_softmax_rows(mean, pairs, out):
+    """Moderated log predictive of each row, written into ``out``.
+
+    Parameters
+    ----------
+    mean : ndarray of shape (m, K)
+        Latent means.
+    pairs : ndarray of shape (m, K(K+1)/2)
+        Covariances Cov(eta_k, eta_l), k <= l, in ``np.triu_indices(K)``
+        order.
+    out : ndarray of shape (m, K), C order
+        Normalised log probabilities.
+    """
+    m, K = mean.shape
+    position = np.empty((K, K), dtype=np.int64)
+    ku, lu = np.triu_indices(K)
+    position[ku, lu] = np.arange(len(ku))
+    k, j = np.triu_indices(K, 1)
+    z = np.empty((m, K, K))
+    top = np.empty((m, K))
+    _moderated_shifted(
+        np.ascontiguousarray(mean, dtype=np.float64),
+        np.ascontiguousarray(pairs, dtype=np.float64),
+        k,
+        j,
+        position[k, k],
+        position[j, j],
+        position[k, j],
+        z,
+        top,
+    )
+    # numpy's SIMD exp: ~1 ns a value against ~5 for a compiled loop's call.
+    np.exp(z, out=z)
+    _moderated_finish(z, top, out)
 
 
 def softmax_rows(y, eta, w, want_h):

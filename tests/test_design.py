@@ -149,9 +149,10 @@ def test_one_compiled_signature_per_kernel(monkeypatch):
     from skbayeslogit import _softmax_kernel as sk
 
     # 12,000 rows: enough for the subsample start, so that the gradient-only
-    # passes (gradient_span) run too; on worker threads, so that its compiled
-    # version does.
+    # passes (gradient_span) run too; in several tasks on worker threads, so
+    # that its compiled version does.
     monkeypatch.setattr(_design, "_SERIAL_WORK", 0.0)
+    monkeypatch.setattr(_design, "_BLOCK_BYTES", 1 << 14)
     n = 12_000
     rng = np.random.default_rng(4)
     X = rng.normal(size=(n, 3))
@@ -164,10 +165,10 @@ def test_one_compiled_signature_per_kernel(monkeypatch):
         for args in ((X, y, w), frozen, (pd.DataFrame(X), pd.Series(y).astype(str), w)):
             model = LaplaceLogisticClassifier(prior_scale=1.0)
             model.fit(*args[:2], sample_weight=args[2])
-            if K == 2:
-                model.predict_proba(args[0])
+            model.predict_proba(args[0])
     dispatchers = [lk._pointwise_kernel.dispatcher(), lk._span_kernel.dispatcher()]
     dispatchers += [sk._softmax_rows, sk._pack_outer, mk._moments_kernel.dispatcher()]
+    dispatchers += [sk._moderated_shifted, sk._moderated_finish]
     for dispatcher in dispatchers:
         assert dispatcher is not None and len(dispatcher.signatures) == 1, dispatcher
 
@@ -234,3 +235,74 @@ def test_binary_moments_flag_bad_values_and_skip_their_piece(value, threaded):
     assert missing[-1] == n - 1 and len(missing) <= _FINISH_ROWS
     np.testing.assert_array_equal(np.diff(missing), 1)
     assert covered.max() == 1
+
+
+@pytest.mark.parametrize("fit_intercept", [True, False])
+@pytest.mark.parametrize(("K", "d"), [(3, 1), (4, 6)])
+def test_multiclass_moments_match_the_definition(K, d, fit_intercept, threaded):
+    """Mean m_k = w_k^T x + b_k and Cov(eta_k, eta_l) = J_k(x) Sigma J_l(x)^T
+    for every row, with Sigma = T H^{-1} T^T formed by numpy's inverse and
+    T a zero-sum map of the intercepts (as a fit without an intercept prior
+    makes); 5,001 rows make uneven pieces. Sums of at most (K d + K)^2
+    O(1) terms: 1e-12 of the largest is thousands of eps."""
+    from skbayeslogit._base import _zero_sum_basis
+    from skbayeslogit._posterior import GaussianPosterior
+
+    n = 5_001
+    rng = np.random.default_rng(K + d)
+    nc = K * d
+    p_full = nc + (K if fit_intercept else 0)
+    if fit_intercept:
+        T = np.zeros((p_full, nc + K - 1))
+        T[:nc, :nc] = np.eye(nc)
+        T[nc:, nc:] = _zero_sum_basis(K)
+    else:
+        T = None
+    p_free = p_full if T is None else T.shape[1]
+    A = rng.normal(size=(p_free, p_free))
+    chol = np.linalg.cholesky(A @ A.T + p_free * np.eye(p_free))
+    theta = rng.normal(size=p_free) if T is None else T @ rng.normal(size=p_free)
+    post = GaussianPosterior(theta, chol, T)
+    X = rng.normal(size=(n, d))
+    design = LinearDesign(np.empty((0, d)), K, fit_intercept)
+    mean, cov = post.latent_moments(design, X)
+
+    sigma_free = np.linalg.inv(chol @ chol.T)
+    sigma = sigma_free if T is None else T @ sigma_free @ T.T
+    # J(x): (K, p_full), row k picks class k's slopes (and intercept).
+    J = np.zeros((n, K, p_full))
+    for k in range(K):
+        J[:, k, k * d : (k + 1) * d] = X
+        if fit_intercept:
+            J[:, k, nc + k] = 1.0
+    _close(mean, J @ theta)
+    _close(cov, np.einsum("nkp,pq,nlq->nkl", J, sigma, J))
+
+
+def test_moderated_softmax_rows_match_the_formula():
+    """The compiled moderated predictive against the formula written out with
+    scipy.special.logsumexp (Lu, Ie & Sha 2020, pairwise form with the
+    variance of each difference), on random means and covariances, and
+    finite, normalised output when the means differ by 1e3."""
+    from scipy.special import logsumexp
+
+    from skbayeslogit._softmax_kernel import moderated_softmax_rows
+
+    rng = np.random.default_rng(5)
+    m, K = 777, 5
+    A = rng.normal(size=(m, K, K))
+    cov = np.einsum("nij,nkj->nik", A, A)
+    ku, lu = np.triu_indices(K)
+    pairs = cov[:, ku, lu]
+    for spread in (3.0, 1e3):
+        mean = rng.normal(size=(m, K)) * spread
+        out = np.empty((m, K))
+        moderated_softmax_rows(mean, pairs, out)
+        diag = np.einsum("nkk->nk", cov)
+        s = np.maximum(diag[:, :, None] + diag[:, None, :] - 2.0 * cov, 0.0)
+        diff = mean[:, :, None] - mean[:, None, :]
+        logp = -logsumexp(-diff / np.sqrt(1.0 + np.pi * s / 8.0), axis=2)
+        expected = logp - logsumexp(logp, axis=1, keepdims=True)
+        np.testing.assert_allclose(out, expected, rtol=1e-12, atol=1e-12 * spread)
+        assert np.all(np.isfinite(out))
+        np.testing.assert_allclose(np.exp(out).sum(axis=1), 1.0, rtol=1e-13)
