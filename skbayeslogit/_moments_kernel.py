@@ -14,8 +14,8 @@ Layout: rows of X are transposed into a small block (features down, rows
 across), so every inner loop runs along rows: it vectorises without any
 reordering of sums, and each row's terms are added in the same fixed order
 whatever the block or thread. Term k of R x~ only has the leading columns
-where R is nonzero (R is triangular), so the loop stops there: 231 of 441
-products at d = 20.
+where R is nonzero (R is triangular), so the loop stops there: 250 of 440
+products a row at d = 20 with an intercept, the mean's included.
 
 It replaced a range scan plus one multi-threaded BLAS product of X with
 [R^T, m] per chunk (too skinny a product for BLAS's blocking). Medians of 15
