@@ -200,6 +200,13 @@ class LinearDesign:
         self.block_rows = int(block_rows)
 
     # -- parameter packing ------------------------------------------------
+    def parameter_index(self, k, a):
+        """Index in the full vector of (class k, column a); column d is the intercept.
+
+        ``k`` and ``a`` are integer arrays that broadcast together.
+        """
+        return np.where(a < self.d, k * self.d + a, self.n_coef + k)
+
     def split(self, theta):
         """Coefficients (q, d) and intercepts (q,) from a full vector."""
         W = theta[: self.n_coef].reshape(self.q, self.d)
@@ -494,15 +501,13 @@ class LinearDesign:
 
     def _packed_positions(self):
         """Flat positions in H of the packed entries, the four symmetric copies."""
-        q, d, nc = self.q, self.d, self.n_coef
+        q, d = self.q, self.d
         dx = d + 1 if self.fit_intercept else d
         ku, lu = np.triu_indices(q)
         au, bu = np.triu_indices(dx)
 
         def param(k, a):
-            # Parameter index of (class k, column a); column d is the intercept.
-            k, a = k[:, None], a[None, :]
-            return np.where(a < d, k * d + a, nc + k)
+            return self.parameter_index(k[:, None], a[None, :])
 
         p = self.p_full
         ka, lb, kb, la = param(ku, au), param(lu, bu), param(ku, bu), param(lu, au)

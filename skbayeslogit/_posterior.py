@@ -149,16 +149,11 @@ class GaussianPosterior:
         cached = getattr(self, "_pair_weight_cache", None)
         if cached is not None:
             return cached
-        q, d, nc = design.q, design.d, design.n_coef
-        dx = d + 1 if design.fit_intercept else d
+        dx = design.d + 1 if design.fit_intercept else design.d
         S = self.cov
-        ku, lu = np.triu_indices(q)
+        ku, lu = np.triu_indices(design.q)
         au, bu = np.triu_indices(dx)
-
-        def param(k, a):
-            # Parameter index of (class k, column a); column d is the intercept.
-            return np.where(a < d, k * d + a, nc + k)
-
+        param = design.parameter_index
         ka, lb = param(ku[None, :], au[:, None]), param(lu[None, :], bu[:, None])
         kb, la = param(ku[None, :], bu[:, None]), param(lu[None, :], au[:, None])
         # a < b: both orders of the pair (S_kl is not symmetric for k != l).
