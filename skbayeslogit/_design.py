@@ -239,9 +239,9 @@ class LinearDesign:
             likelihood costs, to decide whether the pass is threaded),
             ``wants_rows`` (then it is called as ``loss_grad(y, eta, w,
             rows=(start, stop))`` with the span's row range) and, for one
-            output, ``gradient_span(X, coef, b0, y, w, eta, threaded)``,
-            a pass over a whole span of rows that replaces the blocks
-            (``threaded``: whether it runs on the worker threads).
+            output, ``gradient_span(X, coef, b0, y, w, eta)``, a pass
+            over a whole span of rows that replaces the blocks when the pass
+            runs on the worker threads.
         y, w : ndarray of shape (n,)
         theta : ndarray of shape (p_full,)
 
@@ -279,7 +279,7 @@ class LinearDesign:
         """Loss, coefficient gradient (q, d) and intercept gradient (q,) of rows [first, last)."""
         binary = self.q == 1
         span_pass = getattr(likelihood, "gradient_span", None)
-        if binary and span_pass is not None and self.X.flags.c_contiguous:
+        if threaded and binary and span_pass is not None and self.X.flags.c_contiguous:
             loss, gx, gb = span_pass(
                 np.asarray(self.X[first:last]),
                 W[0],
@@ -287,7 +287,6 @@ class LinearDesign:
                 y[first:last],
                 w[first:last],
                 eta[first:last],
-                threaded=threaded,
             )
             return loss, gx[None, :], np.array([gb])
         wants_rows = getattr(likelihood, "wants_rows", False)

@@ -13,19 +13,16 @@ right row is log1p(e) without cancellation.
 Split of the work: numpy's ``exp`` and ``log1p`` fill e and log1p(e) into
 the output arrays; one compiled loop then does the rest (the loss sum and g,
 h, overwriting those arrays) in a single read. numpy's SIMD versions are
-far cheaper than numba's scalar calls: with numpy 2.4 on this AVX2 machine,
-0.85 and 1.2 ns a value, and the whole pointwise step 4.4 ns a row, against
-10.5 ns a row for a compiled loop calling exp, log1p and the division itself. The loss is
-summed in chunks of 1024 rows, so the rounding error of the sum stays near
-(1024 + n / 1024) ulp.
+far cheaper than numba's scalar calls: with numpy 2.4 on the 2-core
+development machine, 0.85 and 1.2 ns a value, and the whole pointwise step
+4.4 ns a row, against 10.5 ns a row for a compiled loop calling exp, log1p
+and the division itself. The loss is summed in chunks of 1024 rows, so the
+rounding error of the sum stays near (1024 + n / 1024) ulp.
 
-The gradient-only pass of a fit (``gradient_span``) has two versions. In
-the calling thread it works through a span of rows in chunks of ~1 MiB of
-X: a BLAS product for eta, the pointwise step above, and a BLAS product for
-X^T g while the chunk is still in cache. On worker threads one compiled loop
-does the whole span in 128 KiB chunks, calling exp and log1p row by row but
-holding no GIL between chunks; numpy's version lost there (see
-``gradient_span``).
+The gradient-only pass on the design's worker threads (``gradient_span``)
+is one compiled loop over a span of rows in 128 KiB chunks instead: it
+calls exp and log1p row by row but holds no GIL between chunks, where the
+numpy blocks lost (see ``gradient_span``).
 
 Compilation: one signature per kernel, compiled on first use (not at
 import) and cached on disk when a cache directory is writable; without one,
@@ -155,23 +152,20 @@ def logistic_derivatives(y, eta, w):
     return float(loss), g, h
 
 
-_SPAN_CHUNK_BYTES = 1 << 20  # X per chunk of the calling-thread version (fastest measured)
-_KERNEL_CHUNK_BYTES = 1 << 17  # X per chunk of the compiled version: stays in L2
+_SPAN_CHUNK_BYTES = 1 << 17  # X per chunk of the span pass: stays in L2
 
 
-def gradient_span(X, coef, b0, y, w, eta, threaded=False):
+def gradient_span(X, coef, b0, y, w, eta):
     """Loss sum, X^T g and sum(g) of a span of rows, with eta filled in.
 
-    Two implementations of the same sums, for the two ways a pass runs.
-    In the calling thread (``threaded=False``) numpy works through chunks of
-    ~1 MiB of X: a BLAS product for eta, numpy's SIMD exp and log1p, the
-    compiled pointwise loop, and a BLAS product for X^T g while the chunk is
-    still in cache. On the design's worker threads one compiled loop does
-    the whole span instead (``_gradient_span``: 128 KiB chunks, exp and
-    log1p row by row), holding no GIL between chunks. Measured as whole fits
-    at n = 1e5 (medians of 20 interleaved fits): at d = 20, run serially,
-    numpy's chunks took 29 ms against 38 ms for the compiled loop; at
-    d = 50, on two workers, the compiled loop took 59 ms against 70 ms.
+    The design calls it for passes on its worker threads: one compiled loop
+    does the whole span in 128 KiB chunks (exp and log1p row by row),
+    holding no GIL between chunks. In the calling thread the design's
+    per-block numpy path is used instead; its SIMD exp and log1p make it the
+    faster one there. Measured as whole fits at n = 1e5 (medians of 20
+    interleaved fits): at d = 20, run serially, numpy's blocks took 29 ms
+    against 38 ms for this loop; at d = 50, on two workers, this loop took
+    59 ms against 70 ms.
 
     Parameters
     ----------
@@ -184,8 +178,6 @@ def gradient_span(X, coef, b0, y, w, eta, threaded=False):
         Labels in {0, 1} and weights.
     eta : ndarray of shape (m,), C-contiguous
         Written: the linear predictor of the span.
-    threaded : bool, default=False
-        Whether the pass runs on worker threads.
 
     Returns
     -------
@@ -193,37 +185,10 @@ def gradient_span(X, coef, b0, y, w, eta, threaded=False):
     grad_x : ndarray of shape (d,)
     grad_b : float
     """
-    coef, y, w = _as_vector(coef), _as_vector(y), _as_vector(w)
-    if threaded:
-        return _compiled_span(X, coef, b0, y, w, eta)
-    return _numpy_span(X, coef, b0, y, w, eta)
-
-
-def _compiled_span(X, coef, b0, y, w, eta):
     d = X.shape[1]
     grad = np.zeros(d + 1)
-    chunk = max(64, _KERNEL_CHUNK_BYTES // (8 * max(d, 1)))
-    loss = _span_kernel(X, coef, float(b0), y, w, eta, grad, chunk)
+    chunk = max(64, _SPAN_CHUNK_BYTES // (8 * max(d, 1)))
+    loss = _span_kernel(
+        X, _as_vector(coef), float(b0), _as_vector(y), _as_vector(w), eta, grad, chunk
+    )
     return float(loss), grad[:d], float(grad[d])
-
-
-def _numpy_span(X, coef, b0, y, w, eta):
-    m, d = X.shape
-    chunk = max(256, _SPAN_CHUNK_BYTES // (8 * max(d, 1)))
-    g = np.empty(min(chunk, m))
-    scratch = np.empty_like(g)
-    grad_x = np.zeros(d)
-    grad_b = 0.0
-    loss = 0.0
-    for start in range(0, m, chunk):
-        stop = min(start + chunk, m)
-        k = stop - start
-        Xc, ec, gc, hc = X[start:stop], eta[start:stop], g[:k], scratch[:k]
-        np.matmul(Xc, coef, out=ec)
-        if b0 != 0.0:
-            ec += b0
-        _fill_exp_log1p(ec, gc, hc)
-        loss += _pointwise_kernel(y[start:stop], ec, w[start:stop], gc, hc, True)
-        grad_x += gc @ Xc
-        grad_b += float(np.sum(gc))
-    return float(loss), grad_x, grad_b

@@ -64,7 +64,8 @@ def threaded(request, monkeypatch):
 @pytest.mark.parametrize("fit_intercept", [True, False])
 @pytest.mark.parametrize("order", ["C", "F"])
 def test_binary_pass_matches_direct_formula(fit_intercept, order, threaded):
-    """C-ordered X takes the span gradient pass, F-ordered the blocks."""
+    """C-ordered X on worker threads takes the span gradient pass; serial passes
+    and F-ordered X take the blocks."""
     n, d = 3_001, 7
     X, y, w = _data(n, d, 2)
     design = LinearDesign(np.asarray(X, order=order), 1, fit_intercept, block_rows=97)
