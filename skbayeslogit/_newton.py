@@ -43,7 +43,7 @@ import warnings
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.linalg import LinAlgError, cho_solve, cholesky
+from scipy.linalg import LinAlgError, cholesky, lapack
 from sklearn.exceptions import ConvergenceWarning
 
 from ._design import LinearDesign
@@ -172,20 +172,46 @@ def _free_map_blocks(T):
     return (lead, tail, B) if np.array_equal(rebuilt, T) else None
 
 
+# LAPACK's potrf / potrs called directly: scipy's cholesky and cho_solve
+# wrappers cost ~20-40 us a call in argument handling, as much as a whole
+# data pass at n = 1,000, and a fit makes one factor and one or two solves
+# per iteration.
+def _factor(H):
+    """Lower Cholesky factor of H (upper triangle zero), or None if H is not
+    numerically positive definite."""
+    L, info = lapack.dpotrf(H, lower=1, clean=1)
+    if info < 0:  # pragma: no cover - an argument error would be ours
+        raise ValueError(f"dpotrf: illegal argument {-info}")
+    # OpenBLAS's potrf tests a pivot with ``<= 0`` only, so a NaN passes
+    # it; a NaN or inf anywhere in the lower triangle reaches the diagonal.
+    if info != 0 or not np.all(np.isfinite(np.diagonal(L))):
+        return None
+    return L
+
+
+def _chol_solve(L, b):
+    """Solve (L L^T) x = b for the lower factor ``L`` of ``_factor``."""
+    x, info = lapack.dpotrs(L, b, lower=1)
+    if info != 0:  # pragma: no cover - an argument error would be ours
+        raise ValueError(f"dpotrs: illegal argument {-info}")
+    return x
+
+
 def _robust_cholesky(H):
     """Lower Cholesky factor of H, adding the smallest diagonal jitter needed."""
-    try:
-        return cholesky(H, lower=True, check_finite=False), 0.0
-    except LinAlgError:
-        pass
+    H = np.asarray(H, dtype=np.float64)
+    if not np.all(np.isfinite(H)):
+        raise LinAlgError("the Hessian contains NaN or infinity")
+    L = _factor(H)
+    if L is not None:
+        return L, 0.0
     scale = max(float(np.mean(np.abs(np.diag(H)))), 1e-300)
     jitter = 1e-12 * scale
     while jitter < 1e6 * scale:
-        try:
-            L = cholesky(H + jitter * np.eye(len(H)), lower=True, check_finite=False)
+        L = _factor(H + jitter * np.eye(len(H)))
+        if L is not None:
             return L, jitter
-        except LinAlgError:
-            jitter *= 10.0
+        jitter *= 10.0
     raise LinAlgError("the Hessian is not positive definite even after regularisation")
 
 
@@ -334,7 +360,7 @@ def newton_solve(
     n_iter = 0
     for n_iter in range(1, max_iter + 1):  # noqa: B007 - n_iter is reported
         L, jitter = _robust_cholesky(H)
-        delta = -cho_solve((L, True), g, check_finite=False)
+        delta = -_chol_solve(L, g)
         decrement = -float(np.dot(g, delta))
         if decrement / 2.0 <= tol and not final_step:
             converged = True
@@ -453,7 +479,7 @@ def _metric_phase(problem, phi, chol, *, max_iter, tol, armijo=1e-4):
             a = rho_i * float(np.dot(s_i, q))
             q -= a * y_i
             alphas.append(a)
-        r = cho_solve((chol, True), q, check_finite=False)
+        r = _chol_solve(chol, q)
         for (s_i, y_i, rho_i), a in zip(pairs, reversed(alphas), strict=True):
             r += (a - rho_i * float(np.dot(y_i, r))) * s_i
         delta = -r

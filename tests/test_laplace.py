@@ -527,6 +527,47 @@ def test_subsample_metric_path_equals_plain_newton(kind, monkeypatch):
     assert fast.log_evidence_ == pytest.approx(plain.log_evidence_, abs=1e-7)
 
 
+def test_cholesky_helpers_match_numpy():
+    """The solver's direct LAPACK calls against numpy.linalg: the factor and
+    solve of a positive definite matrix, the jitter schedule (1e-12 of the
+    mean absolute diagonal, times 10 until it factors) on singular and
+    indefinite ones, and an error for a NaN or infinite Hessian (OpenBLAS's
+    potrf itself lets a NaN pivot through)."""
+    from scipy.linalg import LinAlgError
+
+    from skbayeslogit._newton import _chol_solve, _robust_cholesky
+
+    rng = np.random.default_rng(11)
+    A = rng.normal(size=(6, 6))
+    H = A @ A.T + np.eye(6)
+    b = rng.normal(size=6)
+    L, jitter = _robust_cholesky(H)
+    assert jitter == 0.0
+    np.testing.assert_array_equal(np.triu(L, 1), 0.0)
+    np.testing.assert_allclose(L, np.linalg.cholesky(H), rtol=1e-12, atol=1e-14)
+    np.testing.assert_allclose(_chol_solve(L, b), np.linalg.solve(H, b), rtol=1e-10)
+    np.testing.assert_allclose(_chol_solve(L, np.eye(6)), np.linalg.inv(H), rtol=1e-10)
+
+    # diag(1, -1): -1 + jitter must be positive, so the schedule ends at 10
+    # (1 = mean |diag| x 1e-12 x 10^12 leaves a zero pivot).
+    L, jitter = _robust_cholesky(np.diag([1.0, -1.0]))
+    assert jitter == pytest.approx(10.0, rel=1e-9)
+    np.testing.assert_allclose(L @ L.T, np.diag([11.0, 9.0]), rtol=1e-12)
+    with pytest.raises(np.linalg.LinAlgError):
+        np.linalg.cholesky(np.diag([1.0, -1.0]) + jitter / 10 * np.eye(2))
+
+    # Singular (rank 1): the first step of the schedule is enough.
+    v = np.array([1.0, 2.0, 3.0])
+    L, jitter = _robust_cholesky(np.outer(v, v))
+    assert jitter == pytest.approx(1e-12 * np.mean(v * v), rel=1e-9)
+
+    for bad in (np.nan, np.inf):
+        H_bad = np.eye(3)
+        H_bad[2, 1] = H_bad[1, 2] = bad
+        with pytest.raises(LinAlgError, match="NaN or infinity"):
+            _robust_cholesky(H_bad)
+
+
 def test_poor_subsample_metric_hands_over_to_newton(monkeypatch):
     """A column that is non-zero in 3 rows of 20,000 is absent from most
     500-row subsamples: the subsample Hessian then has only the prior's
