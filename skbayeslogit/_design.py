@@ -17,7 +17,7 @@ import functools
 import os
 import threading
 from concurrent.futures import ThreadPoolExecutor
-from contextlib import contextmanager
+from contextlib import ExitStack, contextmanager
 
 import numpy as np
 
@@ -40,9 +40,11 @@ _held = threading.local()  # .threads: BLAS's own count while a fit holds it at 
 
 
 def _reset_after_fork():
-    # The pool's threads do not exist in a forked child.
-    global _pool, _pool_workers, _pool_lock
+    # The pool's threads do not exist in a forked child, nor does a fit
+    # holding BLAS (the child keeps the BLAS setting it inherited).
+    global _pool, _pool_workers, _pool_lock, _hold_lock, _hold_owner
     _pool, _pool_workers, _pool_lock = None, 0, threading.Lock()
+    _hold_lock, _hold_owner = threading.Lock(), None
 
 
 if hasattr(os, "register_at_fork"):
@@ -64,6 +66,19 @@ def _blas_threads():
     return max(info) if info else 1
 
 
+# One fit at a time holds BLAS at one thread: the first fit to start while
+# no other holds it sets the limit, in its own thread, and restores it when
+# it ends (threadpoolctl >= 3.7 lets only the thread that set an OpenBLAS
+# limit change it again). Fits that start meanwhile, in other threads, run
+# under that hold and take the count it recorded for their workers. When
+# every fit limited and restored on its own, two interleaved fits could
+# leave BLAS at one thread for good (the second recorded the first's limit
+# as the original; seen in 1 of 30 runs of 4 threads x 200 fits).
+_hold_lock = threading.Lock()
+_hold_owner = None  # ident of the thread whose fit set the limit
+_hold_threads = 1  # BLAS's own count, recorded by that fit
+
+
 @contextmanager
 def passes_own_threads():
     """Hold BLAS at one thread for a whole fit; the passes' workers replace it.
@@ -76,21 +91,32 @@ def passes_own_threads():
     many workers as BLAS was allowed threads (at most ``_MAX_WORKERS``).
     Nested use is a no-op. The BLAS setting is process-wide, as is
     threadpoolctl's: other threads' BLAS calls during the fit run on one
-    thread too.
+    thread too. Fits running at once in several threads share the hold of
+    the one that started first; when that one ends first, the others finish
+    with BLAS's threads back beside their workers (slower, never wrong).
     """
+    global _hold_owner, _hold_threads
     if getattr(_held, "threads", None) is not None:
         yield
         return
-    threads = _blas_threads()
-    if threads <= 1:
+    hold = ExitStack()
+    with _hold_lock:
+        if _hold_owner is None:
+            threads = _blas_threads()
+            if threads > 1:
+                hold.enter_context(_blas_controller().limit(limits=1, user_api="blas"))
+                _hold_owner, _hold_threads = threading.get_ident(), threads
+        else:
+            threads = _hold_threads
+    _held.threads = threads
+    try:
         yield
-        return
-    with _blas_controller().limit(limits=1, user_api="blas"):
-        _held.threads = threads
-        try:
-            yield
-        finally:
-            _held.threads = None
+    finally:
+        _held.threads = None
+        if _hold_owner == threading.get_ident():
+            with _hold_lock:
+                hold.close()
+                _hold_owner = None
 
 
 def task_span(n, rows):

@@ -30,6 +30,8 @@ otherwise). The fits themselves run the loss kernels' serial builds on the
 gradient pass's worker threads, from several joblib threads at once.
 """
 
+import threading
+
 import numpy as np
 import pytest
 from joblib import parallel_backend
@@ -40,8 +42,11 @@ from skbayeslogit import (
     LaplaceLogisticClassifier,
     ProbitClassifier,
     TemperedLogisticClassifier,
+    _design,
 )
 from skbayeslogit._numba_config import PARALLEL_MIN_ELEMENTS
+
+BLAS_THREADS = _design._blas_threads()  # before any fit of the session
 
 
 def _data(n, k, seed):
@@ -104,8 +109,62 @@ def test_grid_search_in_parallel_equals_serial(serial, case, backend):
             np.testing.assert_allclose(got.cv_results_[key], ref.cv_results_[key], rtol=1e-12)
     for key in KEYS:
         np.testing.assert_array_equal(got.cv_results_[key], folds.cv_results_[key], err_msg=key)
+    # Fits in several threads share one hold on BLAS; it ends with them.
+    assert _design._blas_threads() == BLAS_THREADS
     assert got.best_params_ == ref.best_params_
     np.testing.assert_array_equal(got.best_estimator_.coef_, ref.best_estimator_.coef_)
     np.testing.assert_array_equal(
         got.best_estimator_.predict_proba(X[:50]), ref.best_estimator_.predict_proba(X[:50])
     )
+
+
+def test_fits_in_two_threads_share_one_hold_on_blas():
+    """The first fit to start sets BLAS to one thread and restores it when
+    it ends; a fit that starts meanwhile in another thread runs under that
+    hold and gives its workers the count recorded before it (reading BLAS
+    then would say 1 and leave its passes on one thread)."""
+    if BLAS_THREADS < 2:
+        pytest.skip("BLAS runs one thread here: there is nothing to hold")
+    entered, release = threading.Event(), threading.Event()
+    seen = {}
+
+    def first():
+        with _design.passes_own_threads():
+            seen["first"] = _design._held.threads
+            entered.set()
+            release.wait(10)
+
+    thread = threading.Thread(target=first)
+    thread.start()
+    assert entered.wait(10)
+    with _design.passes_own_threads():
+        seen["second"] = _design._held.threads
+        seen["blas, both running"] = _design._blas_threads()
+        release.set()
+        thread.join(10)
+        seen["blas, first ended"] = _design._blas_threads()
+    assert seen["first"] == seen["second"] == BLAS_THREADS
+    assert seen["blas, both running"] == 1
+    assert seen["blas, first ended"] == BLAS_THREADS
+    assert _design._blas_threads() == BLAS_THREADS
+
+
+def test_blas_count_survives_many_interleaved_fits():
+    """4 threads x 200 holds, 10 times: BLAS is back at its own count after
+    each round. Each hold limiting and restoring on its own left BLAS at one
+    thread in 1 of 30 such rounds (measured)."""
+    if BLAS_THREADS < 2:
+        pytest.skip("BLAS runs one thread here: there is nothing to hold")
+
+    def holds():
+        for _ in range(200):
+            with _design.passes_own_threads():
+                pass
+
+    for _ in range(10):
+        threads = [threading.Thread(target=holds) for _ in range(4)]
+        for thread in threads:
+            thread.start()
+        for thread in threads:
+            thread.join()
+        assert _design._blas_threads() == BLAS_THREADS
