@@ -68,7 +68,9 @@ def time_call(fn, *, repeats=5, warmup=1, max_seconds=None):
 SETTLE_SECONDS = 0.15
 
 
-def time_interleaved(fns, *, repeats=5, warmup=1, max_seconds=None, settle=SETTLE_SECONDS):
+def time_interleaved(
+    fns, *, repeats=5, warmup=1, max_seconds=None, settle=SETTLE_SECONDS, cpu_out=None
+):
     """Median wall times of several callables, measured in turns.
 
     Round r times every callable once before round r + 1 starts, so a burst
@@ -101,6 +103,10 @@ def time_interleaved(fns, *, repeats=5, warmup=1, max_seconds=None, settle=SETTL
         spent (at least one round is always timed).
     settle : float
         Idle seconds before each timed call (not counted).
+    cpu_out : dict, optional
+        When given, ``cpu_out[name]`` receives the process CPU time of each
+        timed call (``time.process_time``: all of the process's threads,
+        BLAS's own included), beside the wall times.
 
     Returns
     -------
@@ -118,9 +124,12 @@ def time_interleaved(fns, *, repeats=5, warmup=1, max_seconds=None, settle=SETTL
         for name in names[k:] + names[:k]:
             fn = fns[name]
             time.sleep(settle)
+            c0 = time.process_time()
             t0 = time.perf_counter()
             results[name] = fn()
             dt = time.perf_counter() - t0
+            if cpu_out is not None:
+                cpu_out.setdefault(name, []).append(time.process_time() - c0)
             times[name].append(dt)
             spent += dt
         if max_seconds is not None and spent >= max_seconds:
