@@ -67,7 +67,7 @@ def _sizes(quick):
 def _repeats(n, d, quick=False):
     work = n * d
     if quick:
-        return (5, 1) if work <= 1e6 else (3, 1)
+        return 3, 1
     if work <= 1e6:
         return 7, 2
     if work <= 1e7:

@@ -63,9 +63,15 @@ def _quiet_fit(make, X, y):
         return make().fit(X, y)
 
 
+# The quick run times at most this many rounds (it must stay under two
+# minutes with the other scripts); set by ``run``.
+_round_cap = None
+
+
 def _repeats(n, d, K):
     work = n * d * K
-    return (5, 1) if work <= 2e7 else (3, 1)
+    repeats = 5 if work <= 2e7 else 3
+    return (min(repeats, _round_cap or repeats), 1)
 
 
 def _params(model):
@@ -119,7 +125,7 @@ def _predict_row(workload, ours, sk, X):
     """``predict_proba`` of a fitted model of ours against a scikit-learn model's, same X."""
     timed = time_interleaved(
         {"ours": lambda: ours.predict_proba(X), "sk": lambda: sk.predict_proba(X)},
-        repeats=7,
+        repeats=min(7, _round_cap or 7),
         warmup=1,
     )
     (t_ours, _, p_ours), (t_sk, _, p_sk) = timed["ours"], timed["sk"]
@@ -176,6 +182,8 @@ def bench_laplace_multiclass(n, d, K, seed=0):
 
 def run(quick=False):
     """Tempered rows at n = 1e5, d = 20, K in {2, 10}; multiclass Laplace rows."""
+    global _round_cap
+    _round_cap = 3 if quick else None
     rows = bench_tempered(100_000, 20, 2)
     # The quick run uses 1e4 rows for K = 10 (indicative, about 1 s a fit
     # at 1e5 with its repeats would crowd the two minutes) and one

@@ -36,7 +36,7 @@ PRIOR_SCALE = 1.0
 SLOPE_TARGET = (0.9, 1.1)
 
 
-def _pair(n, d, seed=0):
+def _pair(n, d, quick=False, seed=0):
     from sklearn.linear_model import LogisticRegression
 
     from skbayeslogit import LaplaceLogisticClassifier
@@ -53,6 +53,8 @@ def _pair(n, d, seed=0):
 
     work = n * d
     repeats = 5 if work <= 2e6 else (3 if work <= 2e7 else 1)
+    if quick:
+        repeats = min(repeats, 3)
     warmup = 1 if work <= 2e7 else 0
     cpu = {}
     timed = time_interleaved(
@@ -67,7 +69,7 @@ def _curve_rows(kind, sizes, fixed, quick):
     xs, ours_t, sk_t, cpu_t = [], [], [], []
     for s in sizes:
         n, d = (s, fixed) if kind == "n" else (fixed, s)
-        t_ours, t_sk, model, rounds, c_ours = _pair(n, d)
+        t_ours, t_sk, model, rounds, c_ours = _pair(n, d, quick)
         xs.append(s)
         ours_t.append(t_ours)
         sk_t.append(t_sk)

@@ -91,7 +91,7 @@ def first_fit_times(repeats):
 
 
 def run(quick=False):
-    n_imp = 3 if quick else 9
+    n_imp = 2 if quick else 9
     n_fit = 1 if quick else 3
     ours, ref = import_times(n_imp)
     rows = [
