@@ -68,8 +68,9 @@ def _blas_threads():
 
 # One fit at a time holds BLAS at one thread: the first fit to start while
 # no other holds it sets the limit, in its own thread, and restores it when
-# it ends (threadpoolctl >= 3.7 lets only the thread that set an OpenBLAS
-# limit change it again). Fits that start meanwhile, in other threads, run
+# it ends (threadpoolctl >= 3.8 lets only that thread change OpenBLAS's
+# limit until its ``with`` block ends, and ignores the others silently).
+# Fits that start meanwhile, in other threads, run
 # under that hold and take the count it recorded for their workers. When
 # every fit limited and restored on its own, two interleaved fits could
 # leave BLAS at one thread for good (the second recorded the first's limit
