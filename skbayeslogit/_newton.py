@@ -43,7 +43,7 @@ import warnings
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.linalg import LinAlgError, cholesky, lapack
+from scipy.linalg import LinAlgError, lapack
 from sklearn.exceptions import ConvergenceWarning
 
 from ._design import LinearDesign
@@ -554,10 +554,7 @@ def solve_map(problem, phi0=None, *, max_iter=100, tol=1e-8, warn=True):
         else:
             # A given start (the prior-scale search): the metric there.
             _, _, H, _, _ = sub.derivatives(np.asarray(phi0, dtype=np.float64))
-            try:
-                metric = cholesky(H, lower=True, check_finite=True)
-            except (LinAlgError, ValueError):
-                metric = None
+            metric = _factor(H) if np.all(np.isfinite(H)) else None
     if phi0 is None:
         phi0 = np.zeros(problem.p_free)
     if metric is None:
