@@ -195,7 +195,9 @@ def _map_tasks(func, tasks, fold=None, work=None, blas=True):
         pool = _pool
     if held is not None or not blas:
         return _collect(pool.map(lambda t: func(*t), tasks), fold)
-    with _blas_controller().limit(limits=1, user_api="blas"):
+    # Outside a fit, the pass takes the same shared hold as a fit does: a
+    # limit of its own raced with other threads' passes as fits' did.
+    with passes_own_threads():
         return _collect(pool.map(lambda t: func(*t), tasks), fold)
 
 

@@ -168,3 +168,24 @@ def test_blas_count_survives_many_interleaved_fits():
         for thread in threads:
             thread.join()
         assert _design._blas_threads() == BLAS_THREADS
+
+
+def test_blas_count_survives_threaded_passes_outside_fits():
+    """Passes on the worker pool outside a fit (the multiclass predictive's
+    covariances, say) take the same shared hold: 4 threads x 100 passes, 10
+    times, leave BLAS at its own count. A limit of their own per pass left
+    it at one thread within 4 such rounds (measured)."""
+    if BLAS_THREADS < 2:
+        pytest.skip("BLAS runs one thread here: there is nothing to hold")
+
+    def passes():
+        for _ in range(100):
+            _design._map_tasks(int, [(i,) for i in range(4)], work=1e9)
+
+    for _ in range(10):
+        threads = [threading.Thread(target=passes) for _ in range(4)]
+        for thread in threads:
+            thread.start()
+        for thread in threads:
+            thread.join()
+        assert _design._blas_threads() == BLAS_THREADS
