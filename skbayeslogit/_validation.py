@@ -223,7 +223,8 @@ def _column_range(X):
     block = max(r, (_RANGE_BLOCK_BYTES // (8 * max(d, 1))) // r * r)
     span = block * _RANGE_TASK_BLOCKS
     tasks = [(X, a, min(a + span, n), r, block) for a in range(0, n, span)]
-    return _map_tasks(_span_range, tasks, fold=_fold_range, work=2.0 * X.size)
+    # Reductions only: no BLAS call, so BLAS's thread count is left alone.
+    return _map_tasks(_span_range, tasks, fold=_fold_range, work=2.0 * X.size, blas=False)
 
 
 def _check_magnitude(X, per_column=True):
