@@ -31,12 +31,13 @@ from sklearn.utils import check_random_state
 from sklearn.utils.multiclass import check_classification_targets
 from sklearn.utils.validation import _check_sample_weight, check_is_fitted, validate_data
 
-from ._design import LinearDesign, passes_own_threads
+from ._design import LinearDesign
 from ._newton import NewtonProblem, solve_map
 from ._posterior import GaussianPosterior
 from ._softmax_kernel import moderated_softmax_rows
 from ._sources import dask_aware, fit_design, is_out_of_core
 from ._special import expit
+from ._threads import passes_own_threads
 from ._validation import (
     _MAX_ABS_FEATURE,
     _as_labels,

@@ -11,6 +11,8 @@ import numbers
 import numpy as np
 import pandas as pd
 
+from ._threads import _map_tasks
+
 
 # -- parameter checks ---------------------------------------------------------
 def check_scale(name, value, allow_auto=False):
@@ -214,10 +216,8 @@ def _column_range(X):
     vectorised, and reducing the r partial rows at the end gives the same
     values exactly (max and min are order-free). Blocks of about 1 MiB let
     the minimum reread each block from cache; spans of blocks run on the
-    design's worker threads (numpy releases the GIL in reductions).
+    worker threads of ``_threads`` (numpy releases the GIL in reductions).
     """
-    from ._design import _map_tasks
-
     n, d = X.shape
     r = max(1, _RANGE_WIDTH // max(d, 1))
     block = max(r, (_RANGE_BLOCK_BYTES // (8 * max(d, 1))) // r * r)

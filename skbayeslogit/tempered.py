@@ -9,7 +9,7 @@ from scipy.optimize import minimize
 from sklearn.exceptions import ConvergenceWarning
 
 from ._base import LinearClassifierBase, free_parameter_map
-from ._design import LinearDesign, passes_own_threads
+from ._design import LinearDesign
 from ._likelihoods import BinaryLogistic, MultinomialLogistic
 from ._newton import NewtonProblem, solve_map
 from ._numba_config import serial_kernels
@@ -20,6 +20,7 @@ from ._tempered import (
     bitempered_loss_warm,
     tempered_softmax,
 )
+from ._threads import passes_own_threads
 from ._validation import check_bool, check_positive_float, check_positive_int, check_scale
 
 # Rows of the sample on which the convex (t1 = t2 = 1) start is fitted when

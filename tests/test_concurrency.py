@@ -42,11 +42,11 @@ from skbayeslogit import (
     LaplaceLogisticClassifier,
     ProbitClassifier,
     TemperedLogisticClassifier,
-    _design,
+    _threads,
 )
 from skbayeslogit._numba_config import PARALLEL_MIN_ELEMENTS
 
-BLAS_THREADS = _design._blas_threads()  # before any fit of the session
+BLAS_THREADS = _threads._blas_threads()  # before any fit of the session
 
 
 def _data(n, k, seed):
@@ -110,7 +110,7 @@ def test_grid_search_in_parallel_equals_serial(serial, case, backend):
     for key in KEYS:
         np.testing.assert_array_equal(got.cv_results_[key], folds.cv_results_[key], err_msg=key)
     # Fits in several threads share one hold on BLAS; it ends with them.
-    assert _design._blas_threads() == BLAS_THREADS
+    assert _threads._blas_threads() == BLAS_THREADS
     assert got.best_params_ == ref.best_params_
     np.testing.assert_array_equal(got.best_estimator_.coef_, ref.best_estimator_.coef_)
     np.testing.assert_array_equal(
@@ -129,24 +129,24 @@ def test_fits_in_two_threads_share_one_hold_on_blas():
     seen = {}
 
     def first():
-        with _design.passes_own_threads():
-            seen["first"] = _design._held.threads
+        with _threads.passes_own_threads():
+            seen["first"] = _threads._held.threads
             entered.set()
             release.wait(10)
 
     thread = threading.Thread(target=first)
     thread.start()
     assert entered.wait(10)
-    with _design.passes_own_threads():
-        seen["second"] = _design._held.threads
-        seen["blas, both running"] = _design._blas_threads()
+    with _threads.passes_own_threads():
+        seen["second"] = _threads._held.threads
+        seen["blas, both running"] = _threads._blas_threads()
         release.set()
         thread.join(10)
-        seen["blas, first ended"] = _design._blas_threads()
+        seen["blas, first ended"] = _threads._blas_threads()
     assert seen["first"] == seen["second"] == BLAS_THREADS
     assert seen["blas, both running"] == 1
     assert seen["blas, first ended"] == BLAS_THREADS
-    assert _design._blas_threads() == BLAS_THREADS
+    assert _threads._blas_threads() == BLAS_THREADS
 
 
 def test_blas_count_survives_many_interleaved_fits():
@@ -158,7 +158,7 @@ def test_blas_count_survives_many_interleaved_fits():
 
     def holds():
         for _ in range(200):
-            with _design.passes_own_threads():
+            with _threads.passes_own_threads():
                 pass
 
     for _ in range(10):
@@ -167,7 +167,7 @@ def test_blas_count_survives_many_interleaved_fits():
             thread.start()
         for thread in threads:
             thread.join()
-        assert _design._blas_threads() == BLAS_THREADS
+        assert _threads._blas_threads() == BLAS_THREADS
 
 
 def test_blas_count_survives_threaded_passes_outside_fits():
@@ -180,7 +180,7 @@ def test_blas_count_survives_threaded_passes_outside_fits():
 
     def passes():
         for _ in range(100):
-            _design._map_tasks(int, [(i,) for i in range(4)], work=1e9)
+            _threads._map_tasks(int, [(i,) for i in range(4)], work=1e9)
 
     for _ in range(10):
         threads = [threading.Thread(target=passes) for _ in range(4)]
@@ -188,4 +188,4 @@ def test_blas_count_survives_threaded_passes_outside_fits():
             thread.start()
         for thread in threads:
             thread.join()
-        assert _design._blas_threads() == BLAS_THREADS
+        assert _threads._blas_threads() == BLAS_THREADS

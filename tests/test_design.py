@@ -19,9 +19,10 @@ import numpy as np
 import pytest
 from scipy.special import expit, log_expit, log_softmax, softmax
 
-from skbayeslogit import _design
-from skbayeslogit._design import LinearDesign, passes_own_threads
+from skbayeslogit import _design, _threads
+from skbayeslogit._design import LinearDesign
 from skbayeslogit._likelihoods import BinaryLogistic, MultinomialLogistic
+from skbayeslogit._threads import passes_own_threads
 
 RTOL = 1e-12
 
@@ -57,7 +58,7 @@ def _assert_passes(full, gradient_only, reference):
 def threaded(request, monkeypatch):
     """Run the passes in the calling thread, or force tasks onto workers."""
     if request.param:
-        monkeypatch.setattr(_design, "_SERIAL_WORK", 0.0)
+        monkeypatch.setattr(_threads, "_SERIAL_WORK", 0.0)
     return request.param
 
 
@@ -152,7 +153,7 @@ def test_one_compiled_signature_per_kernel(monkeypatch):
     # 12,000 rows: enough for the subsample start, so that the gradient-only
     # passes (gradient_span) run too; in several tasks on worker threads, so
     # that its compiled version does.
-    monkeypatch.setattr(_design, "_SERIAL_WORK", 0.0)
+    monkeypatch.setattr(_threads, "_SERIAL_WORK", 0.0)
     monkeypatch.setattr(_design, "_BLOCK_BYTES", 1 << 14)
     n = 12_000
     rng = np.random.default_rng(4)
