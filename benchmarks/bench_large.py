@@ -100,7 +100,7 @@ def _write_data(directory, n, seed=0):
 
 def _count_passes():
     """Wrap the sources' pass methods with a shared counter."""
-    from skbayeslogit import _sources
+    from skbayeslogit._linear import sources as _sources
 
     counter = {"passes": 0}
     for cls in (_sources.MemmapSource, _sources.DaskSource):

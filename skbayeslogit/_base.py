@@ -31,14 +31,7 @@ from sklearn.utils import check_random_state
 from sklearn.utils.multiclass import check_classification_targets
 from sklearn.utils.validation import _check_sample_weight, check_is_fitted, validate_data
 
-from ._design import LinearDesign
-from ._newton import NewtonProblem, solve_map
-from ._posterior import GaussianPosterior
-from ._softmax_kernel import moderated_softmax_rows
-from ._sources import dask_aware, fit_design, is_out_of_core
-from ._special import expit
-from ._threads import passes_own_threads
-from ._validation import (
+from ._checks.inputs import (
     _MAX_ABS_FEATURE,
     _as_labels,
     _check_magnitude,
@@ -53,6 +46,13 @@ from ._validation import (
     check_scale,
     encode_labels,
 )
+from ._fit.newton import NewtonProblem, solve_map
+from ._fit.posterior import GaussianPosterior
+from ._fit.special import expit
+from ._kernels.softmax import moderated_softmax_rows
+from ._linear.design import LinearDesign
+from ._linear.sources import dask_aware, fit_design, is_out_of_core
+from ._linear.threads import passes_own_threads
 from .exceptions import CollinearityWarning, SeparationWarning
 
 LOG_2PI = float(np.log(2.0 * np.pi))
@@ -267,52 +267,9 @@ def _perfect_margin(likelihood, tail):
     return brentq(excess, 0.0, 1e3, xtol=1e-10)
 
 
-def _zero_sum_basis(K):
-    """Orthonormal basis (K, K-1) of vectors whose entries sum to zero."""
-    # Q from the QR of the centring matrix's first K-1 columns spans that space.
-    centred = np.eye(K) - 1.0 / K
-    Q, _ = np.linalg.qr(centred[:, : K - 1])
-    return Q
-
-
 def free_parameter_map(design, slope_prior, intercept_prior):
-    """T with full = T @ free, or None for the identity.
-
-    Parameters
-    ----------
-    design : LinearDesign
-    slope_prior, intercept_prior : bool
-        Whether the slopes / the intercepts have a proper prior.
-
-    Returns
-    -------
-    ndarray of shape (p_full, p_free) or None
-
-    Notes
-    -----
-    - Binary: identity.
-    - Multiclass with a slope prior and a flat intercept prior: the K
-      intercepts are constrained to sum to zero (the likelihood cannot see
-      their common shift and a flat prior does not fix it).
-    - Multiclass without a slope prior: the first class is the reference
-      (its coefficients and intercept are fixed at 0), as in the classical
-      multinomial logit.
-    """
-    q, d = design.q, design.d
-    if q == 1:
-        return None
-    p = design.p_full
-    if not slope_prior:
-        keep = list(range(d, d * q))
-        if design.fit_intercept:
-            keep += [design.n_coef + k for k in range(1, q)]
-        return np.eye(p)[:, keep]
-    if design.fit_intercept and not intercept_prior:
-        T = np.zeros((p, design.n_coef + q - 1))
-        T[: design.n_coef, : design.n_coef] = np.eye(design.n_coef)
-        T[design.n_coef :, design.n_coef :] = _zero_sum_basis(q)
-        return T
-    return None
+    """T with full = T @ free, or None for the identity (``ParameterLayout.free_map``)."""
+    return design.layout.free_map(slope_prior, intercept_prior)
 
 
 def _row_logsumexp(z):

@@ -536,7 +536,7 @@ class BayesLogitAccessor:
             (laplace, probit); other models get the probabilities and label
             only. ``attrs["level"]`` records the level.
         """
-        from ._validation import check_level
+        from ._checks.inputs import check_level
 
         level = check_level(level)
         if isinstance(model, str) or not _is_fitted(model):
@@ -1024,7 +1024,7 @@ class BayesLogitAccessor:
         -------
         matplotlib.figure.Figure
         """
-        from ._validation import check_level
+        from ._checks.inputs import check_level
         from .plotting import boundary_figure, require_matplotlib
 
         require_matplotlib()

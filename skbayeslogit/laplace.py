@@ -3,8 +3,8 @@
 import numpy as np
 
 from ._base import GaussianPosteriorClassifier
-from ._likelihoods import BinaryLogistic, MultinomialLogistic
-from ._special import expit
+from ._fit.likelihoods import BinaryLogistic, MultinomialLogistic
+from ._fit.special import expit
 
 
 class LaplaceLogisticClassifier(GaussianPosteriorClassifier):

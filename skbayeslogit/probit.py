@@ -3,8 +3,8 @@
 import numpy as np
 
 from ._base import GaussianPosteriorClassifier
-from ._likelihoods import BinaryProbit
-from ._special import log_ndtr, ndtr
+from ._fit.likelihoods import BinaryProbit
+from ._fit.special import log_ndtr, ndtr
 
 
 class ProbitClassifier(GaussianPosteriorClassifier):

@@ -18,7 +18,7 @@ from sklearn.base import BaseEstimator, ClassifierMixin, clone
 from sklearn.utils.metaestimators import available_if
 from sklearn.utils.validation import check_is_fitted, validate_data
 
-from ._validation import _reject_non_numeric_frame, check_level, check_positive_int
+from ._checks.inputs import _reject_non_numeric_frame, check_level, check_positive_int
 
 __all__ = ["StandardizedClassifier"]
 

@@ -42,9 +42,9 @@ from skbayeslogit import (
     LaplaceLogisticClassifier,
     ProbitClassifier,
     TemperedLogisticClassifier,
-    _threads,
 )
-from skbayeslogit._numba_config import PARALLEL_MIN_ELEMENTS
+from skbayeslogit._kernels.config import PARALLEL_MIN_ELEMENTS
+from skbayeslogit._linear import threads as _threads
 
 BLAS_THREADS = _threads._blas_threads()  # before any fit of the session
 

@@ -19,10 +19,11 @@ import numpy as np
 import pytest
 from scipy.special import expit, log_expit, log_softmax, softmax
 
-from skbayeslogit import _design, _threads
-from skbayeslogit._design import LinearDesign
-from skbayeslogit._likelihoods import BinaryLogistic, MultinomialLogistic
-from skbayeslogit._threads import passes_own_threads
+from skbayeslogit._fit.likelihoods import BinaryLogistic, MultinomialLogistic
+from skbayeslogit._linear import design as _design
+from skbayeslogit._linear import threads as _threads
+from skbayeslogit._linear.design import LinearDesign
+from skbayeslogit._linear.threads import passes_own_threads
 
 RTOL = 1e-12
 
@@ -146,9 +147,9 @@ def test_one_compiled_signature_per_kernel(monkeypatch):
     import pandas as pd
 
     from skbayeslogit import LaplaceLogisticClassifier
-    from skbayeslogit import _logistic_kernel as lk
-    from skbayeslogit import _moments_kernel as mk
-    from skbayeslogit import _softmax_kernel as sk
+    from skbayeslogit._kernels import logistic as lk
+    from skbayeslogit._kernels import moments as mk
+    from skbayeslogit._kernels import softmax as sk
 
     # 12,000 rows: enough for the subsample start, so that the gradient-only
     # passes (gradient_span) run too; in several tasks on worker threads, so
@@ -177,7 +178,7 @@ def test_one_compiled_signature_per_kernel(monkeypatch):
 
 def _posterior(p, seed):
     """A Gaussian posterior with a random, well-conditioned precision (p x p)."""
-    from skbayeslogit._posterior import GaussianPosterior
+    from skbayeslogit._fit.posterior import GaussianPosterior
 
     rng = np.random.default_rng(seed)
     A = rng.normal(size=(p, p))
@@ -217,7 +218,7 @@ def test_binary_moments_match_the_definition(fit_intercept, d, threaded):
 def test_binary_moments_flag_bad_values_and_skip_their_piece(value, threaded):
     """A NaN, an infinity or a value beyond the limit, in the last row, is
     reported; its piece is not handed to ``chunk``, the others are."""
-    from skbayeslogit._posterior import _FINISH_ROWS
+    from skbayeslogit._fit.posterior import _FINISH_ROWS
 
     d, n = 4, 3 * _FINISH_ROWS + 5
     post = _posterior(d + 1, seed=3)
@@ -247,8 +248,8 @@ def test_multiclass_moments_match_the_definition(K, d, fit_intercept, threaded):
     T a zero-sum map of the intercepts (as a fit without an intercept prior
     makes); 5,001 rows make uneven pieces. Sums of at most (K d + K)^2
     O(1) terms: 1e-12 of the largest is thousands of eps."""
-    from skbayeslogit._base import _zero_sum_basis
-    from skbayeslogit._posterior import GaussianPosterior
+    from skbayeslogit._fit.posterior import GaussianPosterior
+    from skbayeslogit._linear.layout import zero_sum_basis as _zero_sum_basis
 
     n = 5_001
     rng = np.random.default_rng(K + d)
@@ -288,7 +289,7 @@ def test_moderated_softmax_rows_match_the_formula():
     finite, normalised output when the means differ by 1e3."""
     from scipy.special import logsumexp
 
-    from skbayeslogit._softmax_kernel import moderated_softmax_rows
+    from skbayeslogit._kernels.softmax import moderated_softmax_rows
 
     rng = np.random.default_rng(5)
     m, K = 777, 5

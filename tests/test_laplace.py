@@ -452,7 +452,7 @@ def test_binary_predict_proba_is_expit_of_decision_function(predictive):
 
 def _hessian_pass_rows(monkeypatch):
     """A list that records the row count of every Hessian pass from now on."""
-    from skbayeslogit import _design
+    from skbayeslogit._linear import design as _design
 
     rows = []
     plain = _design.LinearDesign.loss_grad_hess
@@ -491,7 +491,8 @@ def test_subsample_metric_path_equals_plain_newton(kind, monkeypatch):
     """Forced onto small data, the subsample-start, fixed-metric path must
     give the plain Newton path's answer: both stop within tol = 1e-12 nats
     of the same optimum, i.e. about sqrt(2e-12) ~ 1.4e-6 posterior sd."""
-    from skbayeslogit import ProbitClassifier, _newton
+    from skbayeslogit import ProbitClassifier
+    from skbayeslogit._fit import newton as _newton
 
     rng = np.random.default_rng(3)
     n, d = 4_000, 4
@@ -535,7 +536,7 @@ def test_cholesky_helpers_match_numpy():
     potrf itself lets a NaN pivot through)."""
     from scipy.linalg import LinAlgError
 
-    from skbayeslogit._newton import _chol_solve, _robust_cholesky
+    from skbayeslogit._fit.newton import _chol_solve, _robust_cholesky
 
     rng = np.random.default_rng(11)
     A = rng.normal(size=(6, 6))
@@ -573,7 +574,7 @@ def test_poor_subsample_metric_hands_over_to_newton(monkeypatch):
     500-row subsamples: the subsample Hessian then has only the prior's
     curvature along it and its steps overshoot. The fit must notice and
     finish with exact Newton, at the plain path's optimum."""
-    from skbayeslogit import _newton
+    from skbayeslogit._fit import newton as _newton
 
     rng = np.random.default_rng(5)
     n = 20_000
@@ -622,7 +623,7 @@ def test_sufficient_decrease_reads_slopes_only_below_rounding():
     (Hager & Zhang 2005, Sec. 4: the approximation is used only where E's
     difference is at rounding level).
     """
-    from skbayeslogit._newton import _sufficient_decrease
+    from skbayeslogit._fit.newton import _sufficient_decrease
 
     c, x = 1e5, 1e-6
     E = 0.5 * x * x + c

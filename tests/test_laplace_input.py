@@ -173,7 +173,7 @@ def test_nearly_collinear_columns_warn(data):
 def test_column_range_equals_numpy(shape):
     """The wide-view range check gives numpy's column min and max exactly,
     NaN and infinity included, for every block / remainder split."""
-    from skbayeslogit._validation import _column_range, _overall_range
+    from skbayeslogit._checks.inputs import _column_range, _overall_range
 
     rng = np.random.default_rng(sum(shape))
     X = rng.standard_normal(shape) * rng.uniform(0.1, 10, shape[1])
@@ -200,7 +200,7 @@ def test_column_range_equals_numpy(shape):
 )
 def test_label_encoding_equals_numpy_unique(y):
     """Classes (values and dtype) and codes as np.unique(return_inverse=True)."""
-    from skbayeslogit._validation import encode_labels
+    from skbayeslogit._checks.inputs import encode_labels
 
     classes, codes = encode_labels(y)
     ref_classes, ref_codes = np.unique(y, return_inverse=True)

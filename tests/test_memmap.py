@@ -7,9 +7,9 @@ from skbayeslogit import (
     LaplaceLogisticClassifier,
     ProbitClassifier,
     TemperedLogisticClassifier,
-    _newton,
 )
-from skbayeslogit._sources import set_block_rows
+from skbayeslogit._fit import newton as _newton
+from skbayeslogit._linear.sources import set_block_rows
 
 RTOL = 1e-8
 

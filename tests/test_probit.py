@@ -25,8 +25,8 @@ from scipy.special import log_ndtr, ndtr, ndtri
 from scipy.stats import norm
 from sklearn.utils.estimator_checks import parametrize_with_checks
 
-from skbayeslogit._likelihoods import BinaryProbit
-from skbayeslogit._special import inverse_mills
+from skbayeslogit._fit.likelihoods import BinaryProbit
+from skbayeslogit._fit.special import inverse_mills
 from skbayeslogit.exceptions import SeparationWarning
 from skbayeslogit.probit import ProbitClassifier
 

@@ -25,7 +25,11 @@ from skbayeslogit import (
     ProbitClassifier,
     TemperedLogisticClassifier,
 )
-from skbayeslogit._tempered import bitempered_loss, bitempered_loss_binary, tempered_softmax
+from skbayeslogit._kernels.tempered import (
+    bitempered_loss,
+    bitempered_loss_binary,
+    tempered_softmax,
+)
 
 KERNEL = settings(max_examples=100, derandomize=True, deadline=None)
 ESTIMATOR = settings(max_examples=25, derandomize=True, deadline=None)

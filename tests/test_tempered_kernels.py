@@ -24,9 +24,9 @@ from scipy.differentiate import derivative, jacobian
 from scipy.optimize import brentq
 from scipy.special import log_softmax, softmax
 
-from skbayeslogit import _tempered as tk
-from skbayeslogit._numba_config import PARALLEL_MIN_ELEMENTS
-from skbayeslogit._tempered import (
+from skbayeslogit._kernels import tempered as tk
+from skbayeslogit._kernels.config import PARALLEL_MIN_ELEMENTS
+from skbayeslogit._kernels.tempered import (
     bitempered_loss,
     bitempered_loss_binary,
     exp_t,
@@ -517,7 +517,7 @@ def test_workqueue_layer_concurrent_threads_and_fork_do_not_abort():
     # kernels in the child.
     code = """
         import os, threading, numpy as np, numba
-        from skbayeslogit._tempered import tempered_softmax, bitempered_loss
+        from skbayeslogit._kernels.tempered import tempered_softmax, bitempered_loss
         rng = np.random.default_rng(0)
         a = rng.normal(size=(4000, 50)); y = rng.integers(0, 50, 4000)
         ref = tempered_softmax(a, 1.3)
@@ -552,7 +552,7 @@ def test_import_without_writable_cache_and_lazy_compilation():
     # Only the user-provided locator, pointed at a directory nobody (not even
     # root) can create: numba finds no cache location at all.
     code = """
-        import skbayeslogit._tempered as tk
+        import skbayeslogit._kernels.tempered as tk
         kernel = tk._normalise_general_serial
         assert kernel.signatures == [], "compiled at import"
         assert type(kernel._cache).__name__ == "NullCache"
@@ -626,7 +626,7 @@ def test_serial_kernels_context_keeps_large_calls_in_this_thread(monkeypatch):
     # on the same cores); outside it, the parallel build.
     import numba
 
-    from skbayeslogit._numba_config import serial_kernels
+    from skbayeslogit._kernels.config import serial_kernels
 
     if numba.get_num_threads() < 2:
         pytest.skip("one numba thread: every launch is serial")

@@ -30,7 +30,7 @@ Tried without gain: two terms per sweep sharing the loads of the block.
 
 import numpy as np
 
-from ._numba_config import lazy_kernel
+from .config import lazy_kernel
 
 _BLOCK_ROWS = 256  # rows per transposed block: four feature rows and the sums stay in L1
 # The transposed block's rows are 8 doubles longer than the block: at a

@@ -8,17 +8,17 @@ appended column of ones). Two passes are offered: loss and gradient
 enough to stay in cache, with row spans spread over worker threads. The same
 blocked passes are what an out-of-core or distributed data source provides.
 
-Parameter layout ("full" vector, length ``q * d + q`` with an intercept,
-``q * d`` without): the q coefficient rows one after the other, then the q
-intercepts. ``q`` is 1 for a binary model and K for a K-class softmax model.
+The parameter vector's layout is :class:`~.layout.ParameterLayout`'s; the
+design carries one as ``layout``.
 """
 
 import functools
 
 import numpy as np
 
-from ._softmax_kernel import pack_outer
-from ._threads import _map_tasks, _worker_count, task_span
+from .._kernels.softmax import pack_outer
+from .layout import ParameterLayout
+from .threads import _map_tasks, _worker_count, task_span
 
 # ~1 MiB of X per block: the fastest measured for the gradient and Hessian
 # passes on a 512 KiB-L2 core (smaller blocks pay more per-block calls).
@@ -51,30 +51,24 @@ class LinearDesign:
     def __init__(self, X, n_outputs, fit_intercept, block_rows=None):
         self.X = X
         self.n, self.d = X.shape
-        self.q = int(n_outputs)
-        self.fit_intercept = bool(fit_intercept)
-        self.n_coef = self.q * self.d
-        self.p_full = self.n_coef + (self.q if fit_intercept else 0)
+        self._set_layout(ParameterLayout(n_outputs, self.d, fit_intercept))
         if block_rows is None:
             block_rows = max(256, _BLOCK_BYTES // (8 * max(self.d, 1)))
         self.block_rows = int(block_rows)
 
     # -- parameter packing ------------------------------------------------
-    def parameter_index(self, k, a):
-        """Index in the full vector of (class k, column a); column d is the intercept.
+    def _set_layout(self, layout):
+        self.layout = layout
+        self.q, self.fit_intercept = layout.q, layout.fit_intercept
+        self.n_coef, self.p_full = layout.n_coef, layout.p_full
 
-        ``k`` and ``a`` are integer arrays that broadcast together.
-        """
-        return np.where(a < self.d, k * self.d + a, self.n_coef + k)
+    def parameter_index(self, k, a):
+        """Index in the full vector of (class k, column a); see ``ParameterLayout.index``."""
+        return self.layout.index(k, a)
 
     def split(self, theta):
         """Coefficients (q, d) and intercepts (q,) from a full vector."""
-        W = theta[: self.n_coef].reshape(self.q, self.d)
-        if self.fit_intercept:
-            b = theta[self.n_coef :]
-        else:
-            b = np.zeros(self.q)
-        return W, b
+        return self.layout.split(theta)
 
     def linear_predictor(self, theta, X=None):
         """eta for every row: shape (n,) when q == 1, else (n, q)."""

@@ -3,7 +3,7 @@
 The Newton iterations (Laplace, probit, the tempered model's convex start)
 and the tempered model's L-BFGS need nothing from the data but sums over
 rows: the loss, the gradient and the Hessian ``X^T W X``. The in-memory path
-(:class:`~skbayeslogit._design.LinearDesign` on one array) computes them in
+(:class:`~skbayeslogit._linear.design.LinearDesign` on one array) computes them in
 one blocked pass. This module supplies the same sums for data that are not
 one array in memory, by running that same in-memory pass on one piece of
 rows at a time and adding the pieces:
@@ -31,8 +31,9 @@ dask is optional: :func:`require_dask` names the extra to install.
 
 import numpy as np
 
-from ._design import LinearDesign
-from ._validation import _MAX_ABS_FEATURE, _plain
+from .._checks.inputs import _MAX_ABS_FEATURE, _plain
+from .design import LinearDesign
+from .layout import ParameterLayout
 
 _DASK_EXTRA = 'pip install "skbayeslogit[dask]"'
 
@@ -490,10 +491,7 @@ class SourceDesign(LinearDesign):
         self.source = source
         self.X = None
         self.n, self.d = source.n, source.d
-        self.q = int(n_outputs)
-        self.fit_intercept = bool(fit_intercept)
-        self.n_coef = self.q * self.d
-        self.p_full = self.n_coef + (self.q if fit_intercept else 0)
+        self._set_layout(ParameterLayout(n_outputs, self.d, fit_intercept))
         self.block_rows = None
         self.stats = stats
         self.total_weight = stats["w_sum"]

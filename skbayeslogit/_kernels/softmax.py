@@ -37,7 +37,7 @@ All run in the design's worker threads (``nogil``) on the rows of one task.
 
 import numpy as np
 
-from ._numba_config import jit
+from .config import jit
 
 
 @jit()

@@ -16,7 +16,7 @@ Pattern Recognition and Machine Learning (2006), Sec. 4.4-4.5.
 import numpy as np
 from scipy.linalg import solve_triangular
 
-from ._threads import _map_tasks, task_span
+from .._linear.threads import _map_tasks, task_span
 
 # Multiclass moments: rows per piece (its outer products, 66 x 2048 doubles
 # at d = 10, and the K x K covariances stay in L2).
@@ -120,7 +120,7 @@ class GaussianPosterior:
             for k <= l in ``np.triu_indices(K)`` order, of rows [start,
             stop); called from worker threads on disjoint ranges.
         """
-        from ._softmax_kernel import pack_outer
+        from .._kernels.softmax import pack_outer
 
         d = design.d
         dx = d + 1 if design.fit_intercept else d
@@ -189,7 +189,7 @@ class GaussianPosterior:
             False when some entry of X is NaN or beyond ``limit`` (the
             moments are then not to be used).
         """
-        from ._moments_kernel import BinaryMomentPlan
+        from .._kernels.moments import BinaryMomentPlan
 
         plan = getattr(self, "_moment_plan", None)
         if plan is None:

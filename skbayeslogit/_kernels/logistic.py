@@ -33,7 +33,7 @@ ones also match, so neither makes a second compile.
 
 import numpy as np
 
-from ._numba_config import lazy_kernel
+from .config import lazy_kernel
 
 _VEC = "float64[::1]"
 _SIGNATURE = f"float64({_VEC}, {_VEC}, {_VEC}, {_VEC}, {_VEC}, boolean)"

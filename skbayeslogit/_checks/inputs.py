@@ -11,7 +11,7 @@ import numbers
 import numpy as np
 import pandas as pd
 
-from ._threads import _map_tasks
+from .._linear.threads import _map_tasks
 
 
 # -- parameter checks ---------------------------------------------------------

@@ -68,7 +68,7 @@ probabilities that underflow do not turn into NaN or infinite losses.
 Label smoothing: the standard form ``y <- (1 - ls) y + ls / K`` (Szegedy et
 al., CVPR 2016), applied to one-hot and probability labels alike.
 
-Compilation and threading: see :mod:`skbayeslogit._numba_config` (lazy,
+Compilation and threading: see :mod:`skbayeslogit._kernels.config` (lazy,
 cached when a cache directory is writable, parallel rows only for large
 inputs and only when no other Python thread is inside one of our parallel
 kernels).
@@ -81,7 +81,7 @@ import math
 import numba
 import numpy as np
 
-from ._numba_config import jit, launch
+from .config import jit, launch
 
 __all__ = [
     "log_t",

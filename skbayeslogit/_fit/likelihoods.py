@@ -26,9 +26,9 @@ classes (K(K+1)/2 per row).
 
 import numpy as np
 
-from ._logistic_kernel import gradient_span, logistic_derivatives, logistic_loss
-from ._softmax_kernel import softmax_rows
-from ._special import log_expit, log_ndtr, probit_hessian_factor
+from .._kernels.logistic import gradient_span, logistic_derivatives, logistic_loss
+from .._kernels.softmax import softmax_rows
+from .special import log_expit, log_ndtr, probit_hessian_factor
 
 # log sqrt(2 pi): the normal density is exp(-z^2 / 2 - _HALF_LOG_2PI).
 _HALF_LOG_2PI = 0.5 * float(np.log(2.0 * np.pi))

@@ -46,7 +46,7 @@ import numpy as np
 from scipy.linalg import LinAlgError, lapack
 from sklearn.exceptions import ConvergenceWarning
 
-from ._design import LinearDesign
+from .._linear.design import LinearDesign
 
 _METRIC_MIN_ROWS = 2_500  # subsample rows at least ...
 _METRIC_ROWS_PER_PARAM = 20  # ... and this many per parameter (Hessian error ~ sqrt(p / m))

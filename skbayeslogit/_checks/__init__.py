@@ -1,0 +1,1 @@
+"""Checks of estimator parameters and of input data, with one-line errors."""

@@ -1,0 +1,1 @@
+"""Fitting: likelihoods, special functions, the Newton MAP solver and the Gaussian posterior."""

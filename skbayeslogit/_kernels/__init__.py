@@ -1,0 +1,1 @@
+"""Compiled (numba) kernels: pointwise losses, derivatives and moments; they never validate."""

@@ -1,0 +1,1 @@
+"""The linear predictor over the data: parameter layout, design passes, sources, threads."""
