@@ -1,0 +1,1 @@
+"""What the ``df.bayeslogit`` accessor and the report share: columns, models, evaluation."""

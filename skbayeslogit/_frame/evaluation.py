@@ -1,0 +1,188 @@
+"""How good a model's probabilities are on a frame: scores, confusion, calibration, costs.
+
+Every table function takes the frame, the target column and a model (a
+fitted one, or a name or unfitted estimator that is fitted on the frame
+first) and returns a DataFrame whose ``attrs`` hold the summary numbers and
+``rows_dropped``.
+"""
+
+import numpy as np
+import pandas as pd
+
+from .fitting import class_codes, fitted_on_frame, record
+
+# Warnings point at the user's call: table function -> accessor method -> user.
+_CALLER = 3
+
+
+def reliability(prob, hit, bins):
+    """Uniform-bin reliability of one probability column.
+
+    Bins are ``[0, 1/bins], (1/bins, 2/bins], ...`` (the same rule as
+    scikit-learn's ``calibration_curve`` with ``strategy="uniform"``).
+
+    Parameters
+    ----------
+    prob : ndarray of shape (n,), in [0, 1]
+    hit : ndarray of shape (n,), bool (the event happened)
+    bins : int
+
+    Returns
+    -------
+    table : dict of ndarray of shape (bins,)
+    ece : float
+        sum over bins of count / n * |observed - mean predicted|.
+    """
+    edges = np.linspace(0.0, 1.0, bins + 1)
+    ids = np.searchsorted(edges[1:-1], prob)
+    count = np.bincount(ids, minlength=bins)
+    sum_p = np.bincount(ids, weights=prob, minlength=bins)
+    sum_y = np.bincount(ids, weights=hit.astype(float), minlength=bins)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        mean_p = np.where(count > 0, sum_p / count, np.nan)
+        obs = np.where(count > 0, sum_y / count, np.nan)
+    full = count > 0
+    ece = float(np.sum(count[full] * np.abs(obs[full] - mean_p[full])) / len(prob))
+    table = {
+        "bin": np.arange(bins),
+        "bin_lower": edges[:-1],
+        "bin_upper": edges[1:],
+        "count": count.astype(np.int64),
+        "mean_predicted": mean_p,
+        "observed_frequency": obs,
+    }
+    return table, ece
+
+
+def scores(P, codes, bins=10):
+    """Log loss, Brier score and ECE of probabilities P for class codes.
+
+    Binary (two columns): Brier and ECE on the probability of the second
+    class. Multiclass: Brier summed over classes (range [0, 2]) and the
+    class-wise ECE (mean of the one-vs-rest ECEs).
+    """
+    n, K = P.shape
+    rows = np.arange(n)
+    eps = np.finfo(np.float64).eps
+    log_loss = float(-np.mean(np.log(np.clip(P[rows, codes], eps, 1.0))))
+    if K == 2:
+        hit = codes == 1
+        brier = float(np.mean((hit - P[:, 1]) ** 2))
+        _, ece = reliability(P[:, 1], hit, bins)
+        return {"log_loss": log_loss, "brier": brier, "ece": ece}
+    onehot = np.zeros_like(P)
+    onehot[rows, codes] = 1.0
+    brier = float(np.mean(np.sum((onehot - P) ** 2, axis=1)))
+    eces = [reliability(P[:, k], codes == k, bins)[1] for k in range(K)]
+    return {"log_loss": log_loss, "brier": brier, "ece": float(np.mean(eces))}
+
+
+def call_counts(truth, called):
+    """True/false positives and negatives of boolean calls against the truth."""
+    return {
+        "tp": int(np.sum(truth & called)),
+        "fp": int(np.sum(~truth & called)),
+        "fn": int(np.sum(truth & ~called)),
+        "tn": int(np.sum(~truth & ~called)),
+    }
+
+
+def rates(table):
+    """Sensitivity, specificity, precision and accuracy of a table of counts.
+
+    A rate with an empty denominator is NaN.
+    """
+    tp, fp, fn, tn = (np.asarray(table[k], dtype=float) for k in ("tp", "fp", "fn", "tn"))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return {
+            "sensitivity": np.where(tp + fn > 0, tp / (tp + fn), np.nan),
+            "specificity": np.where(tn + fp > 0, tn / (tn + fp), np.nan),
+            "precision": np.where(tp + fp > 0, tp / (tp + fp), np.nan),
+            "accuracy": (tp + tn) / (tp + fp + fn + tn),
+        }
+
+
+def _probabilities(df, target, model, dropna):
+    model, X, y, keep = fitted_on_frame(df, model, target, dropna, stacklevel=_CALLER + 2)
+    classes, codes = class_codes(model, y, target)
+    return np.asarray(model.predict_proba(X)), classes, codes, keep
+
+
+def confusion_table(df, target, model, threshold, dropna):
+    """Counts and rates of the calls ``P(c | x) >= threshold`` (see the accessor)."""
+    P, classes, codes, keep = _probabilities(df, target, model, dropna)
+    shown = [1] if len(classes) == 2 else range(len(classes))
+    rows = [
+        {"threshold": threshold, "n": len(codes), **call_counts(codes == k, P[:, k] >= threshold)}
+        for k in shown
+    ]
+    out = pd.DataFrame(rows, index=pd.Index([classes[k] for k in shown], name="class"))
+    for name, values in rates(out).items():
+        out[name] = values
+    extra = {}
+    if len(classes) > 2:
+        extra["accuracy"] = float(np.mean(np.argmax(P, axis=1) == codes))
+    return record(out, keep, **extra)
+
+
+def calibration_table(df, target, model, bins, dropna):
+    """Reliability table with ECE, Brier score and log loss in attrs (see the accessor)."""
+    P, classes, codes, keep = _probabilities(df, target, model, dropna)
+    summary = scores(P, codes, bins)
+    if len(classes) == 2:
+        table, _ = reliability(P[:, 1], codes == 1, bins)
+        out = pd.DataFrame(table)
+        extra = {"positive_class": classes[1]}
+    else:
+        parts, by_class = [], {}
+        for k, c in enumerate(classes):
+            table, ece = reliability(P[:, k], codes == k, bins)
+            part = pd.DataFrame(table)
+            part.insert(0, "class", c)
+            parts.append(part)
+            by_class[c] = ece
+        out = pd.concat(parts, ignore_index=True)
+        extra = {"ece_by_class": by_class}
+    return record(out, keep, **summary, n=len(codes), bins=bins, classes=list(classes), **extra)
+
+
+def empirical_threshold(p, pos, c_fp, c_fn, prefer):
+    """Midpoint threshold of the cheapest cut of the sorted probabilities.
+
+    Calling rows with p >= t positive, every t between two neighbouring
+    distinct probabilities gives the same calls; the candidates are the
+    midpoints of those gaps, plus one below the smallest and one above the
+    largest probability.
+    """
+    u = np.unique(p)
+    cuts = np.concatenate([[u[0] / 2.0], (u[:-1] + u[1:]) / 2.0, [(u[-1] + 1.0) / 2.0]])
+    # Counts of negatives and positives at or above each cut, by sorting once.
+    neg_sorted = np.sort(p[~pos])
+    pos_sorted = np.sort(p[pos])
+    fp = len(neg_sorted) - np.searchsorted(neg_sorted, cuts, side="left")
+    fn = np.searchsorted(pos_sorted, cuts, side="left")
+    cost = c_fp * fp + c_fn * fn
+    best = np.flatnonzero(cost == cost.min())
+    return float(cuts[best[np.argmin(np.abs(cuts[best] - prefer))]])
+
+
+def cost_threshold_table(df, target, model, c_fp, c_fn, dropna):
+    """The decision-theoretic and the empirical cost threshold (see the accessor)."""
+    P, classes, codes, keep = _probabilities(df, target, model, dropna)
+    if len(classes) != 2:
+        raise ValueError(
+            f"cost_threshold needs a binary target; the model has {len(classes)} classes."
+        )
+    p = P[:, 1]
+    pos = codes == 1
+    t_bayes = c_fp / (c_fp + c_fn)
+    t_emp = empirical_threshold(p, pos, c_fp, c_fn, t_bayes)
+    rows = [{"threshold": t, **call_counts(pos, p >= t)} for t in (t_bayes, t_emp)]
+    out = pd.DataFrame(rows, index=pd.Index(["decision_theoretic", "empirical"], name="rule"))
+    found = rates(out)
+    out["sensitivity"] = found["sensitivity"]
+    out["specificity"] = found["specificity"]
+    out["cost"] = c_fp * out["fp"] + c_fn * out["fn"]
+    out["cost_per_row"] = out["cost"] / len(p)
+    attrs = {"cost_fp": c_fp, "cost_fn": c_fn}
+    return record(out, keep, **attrs, positive_class=classes[1], negative_class=classes[0])

@@ -1,0 +1,80 @@
+"""A fitted model and the rows it sees: fit one on a frame, or use a fitted one.
+
+A model given by name or as an unfitted estimator is fitted on the frame
+(the target and every numeric column but the target); a fitted one is used
+as is, on the columns it records in ``feature_names_in_``.
+"""
+
+import copy
+
+import numpy as np
+import pandas as pd
+
+from .columns import checked_data, model_data, resolve_features
+from .registry import build_estimator, is_fitted
+
+
+def fit_on_frame(df, target, features, model, standardize, dropna, params, stacklevel=2):
+    """Fit ``model`` (a name or an estimator, cloned) to columns of ``df``.
+
+    Returns
+    -------
+    estimator
+        Fitted, with ``target_name_`` the target column.
+    """
+    feats = resolve_features(df, target, features)
+    X, y, _ = checked_data(df, target, feats, dropna, stacklevel=stacklevel + 1)
+    est = build_estimator(model, params, standardize)
+    est.fit(X, y)
+    est.target_name_ = target
+    return est
+
+
+def fitted_on_frame(df, model, target, dropna, features=None, stacklevel=2):
+    """A fitted model and the data it sees: use a fitted one, fit anything else.
+
+    Returns
+    -------
+    model, X, y, keep
+        ``keep`` marks the rows of ``df`` used.
+    """
+    if model is None:
+        raise TypeError("model is required.")
+    if is_fitted(model):
+        if not hasattr(model, "predict_proba"):
+            raise TypeError(f"model must have predict_proba; got {type(model).__name__}.")
+        return (model, *model_data(df, model, target, dropna, stacklevel=stacklevel + 1))
+    est = fit_on_frame(df, target, features, model, True, dropna, {}, stacklevel + 1)
+    return (est, *model_data(df, est, target, dropna, warn=False))
+
+
+def class_codes(model, y, target):
+    """The model's classes and the index of each label among them."""
+    classes = np.asarray(model.classes_)
+    codes = pd.Index(classes).get_indexer(y)
+    if np.any(codes < 0):
+        unknown = pd.unique(y[codes < 0])
+        raise ValueError(
+            f"the target {target!r} has label(s) the model was not fitted on: "
+            f"{', '.join(map(repr, unknown[:10]))}; the model's classes are "
+            f"{', '.join(map(repr, classes))}."
+        )
+    return classes, codes
+
+
+def rows_with(df, keep, order=None, **columns):
+    """The used rows of ``df`` (in ``order``) plus new columns, with a private copy of attrs."""
+    out = df if keep.all() else df.loc[keep]
+    if order is not None:
+        out = out.iloc[order]
+    out = out.assign(**columns)
+    # Our own copy of the caller's attrs: updating it must not reach theirs.
+    out.attrs = copy.deepcopy(df.attrs)
+    return out
+
+
+def record(result, keep, **attrs):
+    """Store ``attrs`` and the number of rows left out in ``result.attrs``."""
+    result.attrs.update(attrs)
+    result.attrs["rows_dropped"] = int((~keep).sum())
+    return result

@@ -1,0 +1,83 @@
+"""A model's predictions on the rows of a frame: probabilities and doubtful labels."""
+
+import warnings
+
+import numpy as np
+
+from .columns import model_data
+from .fitting import class_codes, fitted_on_frame, record, rows_with
+from .registry import is_fitted, model_label
+
+# Warnings point at the user's call: this module -> accessor method -> user.
+_CALLER = 3
+
+
+def prediction_table(df, model, level, dropna):
+    """The frame's used rows plus probabilities, bounds and label (see ``predict_table``)."""
+    if not is_fitted(model):
+        raise TypeError(
+            "predict_table needs a fitted model; fit one first with df.bayeslogit.fit."
+        )
+    X, _, keep = model_data(df, model, None, dropna, stacklevel=_CALLER + 1)
+    classes = np.asarray(model.classes_)
+    P = np.asarray(model.predict_proba(X))
+    bounds = model.predict_interval(X, level=level) if hasattr(model, "predict_interval") else None
+    shown = [1] if len(classes) == 2 else range(len(classes))
+    new = {}
+    for k in shown:
+        name = f"prob_{classes[k]}"
+        new[name] = P[:, k]
+        if bounds is not None:
+            lo, hi = (np.asarray(b) for b in bounds)
+            new[f"{name}_lower"] = lo if lo.ndim == 1 else lo[:, k]
+            new[f"{name}_upper"] = hi if hi.ndim == 1 else hi[:, k]
+    new["predicted_label"] = classes[np.argmax(P, axis=1)]
+    clash = [c for c in new if c in df.columns]
+    if clash:
+        raise ValueError(
+            f"the frame already has column(s) {', '.join(clash)}; drop or rename them "
+            "before predict_table adds its own."
+        )
+    return record(rows_with(df, keep, **new), keep, level=level)
+
+
+def default_doubt_model(available):
+    """The robust "tempered" model, or "laplace" with a warning when it is absent."""
+    if "tempered" in available:
+        return "tempered"
+    warnings.warn(
+        "the tempered model is not available in this installation; scoring "
+        "doubtful labels with the Laplace model by -log P(recorded label), "
+        "which is less robust to the very label errors it looks for.",
+        UserWarning,
+        stacklevel=_CALLER,
+    )
+    return "laplace"
+
+
+def doubtful_rows(df, target, model, top, features, dropna):
+    """The rows ranked by doubt about their recorded label (see ``doubtful_labels``)."""
+    model, X, y, keep = fitted_on_frame(
+        df, model, target, dropna, features=features, stacklevel=_CALLER + 1
+    )
+    classes, codes = class_codes(model, y, target)
+    P = np.asarray(model.predict_proba(X))
+    p_rec = P[np.arange(len(codes)), codes]
+    if hasattr(model, "label_doubt"):
+        score = np.asarray(model.label_doubt(X, y), dtype=np.float64)
+        scorer = "label_doubt"
+    else:
+        score = -np.log(np.clip(p_rec, np.finfo(np.float64).tiny, 1.0))
+        scorer = "-log P(recorded label)"
+    order = np.argsort(-score, kind="stable")
+    if top is not None:
+        order = order[:top]
+    out = rows_with(
+        df,
+        keep,
+        order,
+        doubt_score=score[order],
+        prob_recorded_label=p_rec[order],
+        most_likely_label=classes[np.argmax(P[order], axis=1)],
+    )
+    return record(out, keep, scorer=scorer, model=model_label(model))
