@@ -78,3 +78,38 @@ def record(result, keep, **attrs):
     result.attrs.update(attrs)
     result.attrs["rows_dropped"] = int((~keep).sum())
     return result
+
+
+def coefficient_table(model, level):
+    """Coefficient table on both scales; estimates only for a model without ``coef_table``.
+
+    Parameters
+    ----------
+    model : fitted estimator (bare or standardised)
+    level : float in (0, 1)
+        Credible level of the bounds, for models with ``coef_table``.
+
+    Returns
+    -------
+    pandas.DataFrame
+        Indexed by parameter (binary) or (class, parameter).
+    """
+    if hasattr(model, "coef_table"):
+        return model.coef_table(level)
+    inner = getattr(model, "estimator_", model)
+    names = list(model.feature_names_in_)
+    classes = [str(c) for c in model.classes_]
+    coef_std = np.atleast_2d(inner.coef_)
+    coef_orig = np.atleast_2d(model.coef_)
+    int_std = np.atleast_1d(inner.intercept_)
+    int_orig = np.atleast_1d(model.intercept_)
+    rows = []
+    for k in range(coef_std.shape[0]):
+        label = classes[1] if coef_std.shape[0] == 1 else classes[k]
+        for j, name in enumerate(names):
+            rows.append((label, name, coef_std[k, j], coef_orig[k, j]))
+        rows.append((label, "intercept", int_std[k], int_orig[k]))
+    table = pd.DataFrame(rows, columns=["class", "parameter", "estimate", "estimate_original"])
+    if coef_std.shape[0] == 1:
+        return table.drop(columns="class").set_index("parameter")
+    return table.set_index(["class", "parameter"])

@@ -73,7 +73,7 @@ class ModelLocations(MutableMapping):
 MODEL_NAMES = ModelLocations()
 
 
-def title(name):
+def model_title(name):
     """The model's title in reports (its name when it is not a known model)."""
     record = MODELS.get(name)
     return name if record is None else record.title
