@@ -129,6 +129,54 @@ def _style_axes(ax):
     ax.tick_params(labelsize=9)
 
 
+def _series_style(s):
+    """Marker, line style and grey of series ``s``."""
+    return _MARKERS[s % len(_MARKERS)], _LINESTYLES[s % len(_LINESTYLES)], _GREYS[s % len(_GREYS)]
+
+
+def _legend_key(label, **style):
+    """A legend entry that draws nothing on the axes."""
+    from matplotlib.lines import Line2D
+
+    return Line2D([], [], label=label, **style)
+
+
+def _draw_coefficient_series(ax, part, params, offset, style):
+    """Intervals and estimates of one series, row ``r`` of ``params`` at height n - 1 - r."""
+    from matplotlib.lines import Line2D
+
+    marker, ls, grey = style
+    for r, param in enumerate(params):
+        row = part.loc[param]
+        if not np.isfinite(row["estimate"]):
+            continue
+        ypos = len(params) - 1 - r + offset
+        ax.add_line(
+            Line2D(
+                [row["lower"], row["upper"]],
+                [ypos, ypos],
+                color=grey,
+                lw=1.6,
+                ls=ls,
+                solid_capstyle="butt",
+                gid="interval",
+            )
+        )
+        excludes_zero = row["lower"] > 0 or row["upper"] < 0
+        ax.plot(
+            [row["estimate"]],
+            [ypos],
+            marker=marker,
+            ms=6.5,
+            ls="none",
+            color=grey,
+            markeredgecolor="0.1",
+            markerfacecolor=grey if excludes_zero else "white",
+            zorder=3,
+            gid="estimate",
+        )
+
+
 def coefficient_figure(table, *, level, xlabel, title=None):
     """Point estimates with credible intervals, one row per feature.
 
@@ -151,7 +199,6 @@ def coefficient_figure(table, *, level, xlabel, title=None):
         include it.
     """
     Figure = require_matplotlib()
-    from matplotlib.lines import Line2D
 
     if getattr(table.index, "nlevels", 1) == 2:
         series = list(dict.fromkeys(table.index.get_level_values(0)))
@@ -172,74 +219,15 @@ def coefficient_figure(table, *, level, xlabel, title=None):
     handles = []
     for s, (name, off) in enumerate(zip(series, offsets, strict=True)):
         part = table if name is None else table.xs(name, level=0)
-        part = part.reindex(params)
-        marker = _MARKERS[s % len(_MARKERS)]
-        ls = _LINESTYLES[s % len(_LINESTYLES)]
-        grey = _GREYS[s % len(_GREYS)]
-        for r, param in enumerate(params):
-            row = part.loc[param]
-            if not np.isfinite(row["estimate"]):
-                continue
-            ypos = n_rows - 1 - r + off
-            ax.add_line(
-                Line2D(
-                    [row["lower"], row["upper"]],
-                    [ypos, ypos],
-                    color=grey,
-                    lw=1.6,
-                    ls=ls,
-                    solid_capstyle="butt",
-                    gid="interval",
-                )
-            )
-            excludes_zero = row["lower"] > 0 or row["upper"] < 0
-            ax.plot(
-                [row["estimate"]],
-                [ypos],
-                marker=marker,
-                ms=6.5,
-                ls="none",
-                color=grey,
-                markeredgecolor="0.1",
-                markerfacecolor=grey if excludes_zero else "white",
-                zorder=3,
-                gid="estimate",
-            )
+        marker, ls, grey = style = _series_style(s)
+        _draw_coefficient_series(ax, part.reindex(params), params, off, style)
         if name is not None:
             handles.append(
-                Line2D(
-                    [],
-                    [],
-                    color=grey,
-                    ls=ls,
-                    marker=marker,
-                    markeredgecolor="0.1",
-                    label=str(name),
-                )
+                _legend_key(str(name), color=grey, ls=ls, marker=marker, markeredgecolor="0.1")
             )
-    handles.append(
-        Line2D(
-            [],
-            [],
-            color="0.3",
-            marker="o",
-            ls="none",
-            markeredgecolor="0.1",
-            label=f"{level:.0%} interval excludes 0",
-        )
-    )
-    handles.append(
-        Line2D(
-            [],
-            [],
-            color="0.3",
-            marker="o",
-            ls="none",
-            markeredgecolor="0.1",
-            markerfacecolor="white",
-            label=f"{level:.0%} interval includes 0",
-        )
-    )
+    key = {"color": "0.3", "marker": "o", "ls": "none", "markeredgecolor": "0.1"}
+    handles.append(_legend_key(f"{level:.0%} interval excludes 0", **key))
+    handles.append(_legend_key(f"{level:.0%} interval includes 0", markerfacecolor="white", **key))
     ax.set_yticks(np.arange(n_rows)[::-1], [axis_label(p) for p in params])
     ax.set_ylim(-0.7, n_rows - 0.3)
     ax.autoscale(enable=True, axis="x")
@@ -355,17 +343,12 @@ def boundary_figure(
             line.set(color="0.35", lw=0.8, alpha=0.55, gid="posterior_draw", zorder=2)
             ax.add_line(line)
         handles.append(
-            Line2D(
-                [],
-                [],
-                color="0.35",
-                lw=0.8,
-                alpha=0.7,
-                label=f"boundaries of {len(draw_lines)} posterior draws",
+            _legend_key(
+                f"boundaries of {len(draw_lines)} posterior draws", color="0.35", lw=0.8, alpha=0.7
             )
         )
     ax.contour(grid_x, grid_y, grid_prob, levels=[0.5], colors=["0.0"], linewidths=2.2, zorder=4)
-    handles.append(Line2D([], [], color="0.0", lw=2.2, label="P = 0.5 (predicted probability)"))
+    handles.append(_legend_key("P = 0.5 (predicted probability)", color="0.0", lw=2.2))
     styles = (
         {"marker": "o", "facecolors": "white", "edgecolors": "0.15"},
         {"marker": "^", "facecolors": "0.25", "edgecolors": "0.05"},
@@ -376,15 +359,13 @@ def boundary_figure(
             x[mask], y[mask], s=22, linewidths=0.8, label=str(cls), zorder=3, gid="data", **style
         )
         handles.append(
-            Line2D(
-                [],
-                [],
+            _legend_key(
+                f"recorded {cls}",
                 ls="none",
                 marker=style["marker"],
                 markersize=6,
                 markerfacecolor=style["facecolors"],
                 markeredgecolor=style["edgecolors"],
-                label=f"recorded {cls}",
             )
         )
     ax.set_xlim(x0, x1)
@@ -442,9 +423,7 @@ def calibration_figure(table, *, xlabel, scores=None, title=None):
     n_groups = len(groups)
     width = 1.0 / max(len(table) / n_groups, 1) / n_groups
     for s, (name, part) in enumerate(groups):
-        marker = _MARKERS[s % len(_MARKERS)]
-        ls = _LINESTYLES[s % len(_LINESTYLES)]
-        grey = _GREYS[s % len(_GREYS)]
+        marker, ls, grey = _series_style(s)
         full = part[part["count"] > 0]
         count = full["count"].to_numpy(dtype=float)
         obs = full["observed_frequency"].to_numpy(dtype=float)
