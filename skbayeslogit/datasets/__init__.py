@@ -106,6 +106,25 @@ import numpy as np
 import pandas as pd
 from scipy.special import softmax
 
+from ._simulation import (  # noqa: F401  (importable here as before)
+    ORCHARDS,
+    check_params,
+    check_random_state,
+    flip_counts,
+    lot_ids,
+    simulate,
+    split_halves,
+)
+from ._truth import (
+    FEATURES,
+    NOISE_FEATURES,
+    TARGET,
+    linear_predictor,
+    margins,
+    require_truth,
+    to_standard_scale,
+)
+
 __all__ = [
     "FEATURES",
     "NOISE_FEATURES",
@@ -115,315 +134,6 @@ __all__ = [
     "orchard_ground_truth",
     "orchard_true_coefficients",
 ]
-
-#: Name of the label column.
-TARGET = "storage_grade"
-
-#: The seven measurements the ground truth uses, in column order.
-FEATURES = (
-    "firmness_n",
-    "soluble_solids_brix",
-    "starch_index",
-    "days_since_bloom",
-    "fruit_mass_g",
-    "bruise_share_pct",
-    "intake_temp_c",
-)
-
-#: Measurements with zero true effect.
-NOISE_FEATURES = ("intake_temp_c",)
-
-_CENTER = (70.5, 13.0, 4.6, 145.5, 191.5, 3.0, 14.0)
-_SCALE = (7.8, 1.15, 1.7, 9.5, 26.7, 2.6, 3.5)
-
-_ORCHARDS = ("Hillcrest", "Riverbend", "Old Mill", "Cedar Slope", "North Terrace")
-# Per-block shifts give the orchard column a real association with the
-# measurements (and so, marginally, with the grade) while the grade stays
-# independent of it given the measurements.
-_ORCHARD_DAY_SHIFT = (-4.0, 0.0, 3.0, -1.0, 5.0)
-_ORCHARD_MASS_SHIFT = (10.0, -5.0, 0.0, 15.0, -12.0)
-
-# Standardised-scale truth; the reference class (if any) has no entry.
-_TRUTH = {
-    2: {
-        "classes": ("early_sale", "long_storage"),
-        "reference": "early_sale",
-        "coef": {"long_storage": (1.2, 0.6, -0.9, -0.3, -0.4, -1.0, 0.0)},
-        "intercept": {"long_storage": 0.3},
-    },
-    3: {
-        "classes": ("fresh_market", "juice", "long_storage"),
-        "reference": "juice",
-        "coef": {
-            "fresh_market": (0.7, 0.8, -0.2, 0.0, 0.3, -0.9, 0.0),
-            "long_storage": (1.5, 0.5, -1.0, -0.3, -0.2, -1.6, 0.0),
-        },
-        "intercept": {"fresh_market": 0.3, "long_storage": -0.4},
-    },
-}
-
-# --------------------------------------------------------------------------
-# validation
-# --------------------------------------------------------------------------
-
-
-def _check_n_lots(n_lots):
-    if isinstance(n_lots, bool) or not isinstance(n_lots, numbers.Real):
-        raise TypeError(f"n_lots must be an integer, got {n_lots!r}.")
-    if not isinstance(n_lots, numbers.Integral):
-        if not (np.isfinite(n_lots) and float(n_lots).is_integer()):
-            raise ValueError(f"n_lots must be a whole number, got {n_lots!r}.")
-    n = int(n_lots)
-    if n < 10:
-        raise ValueError(f"n_lots must be at least 10, got {n}.")
-    return n
-
-
-def _check_share(value, name):
-    if isinstance(value, bool) or not isinstance(value, numbers.Real):
-        raise TypeError(f"{name} must be a number in [0, 1), got {value!r}.")
-    value = float(value)
-    if not (0.0 <= value < 1.0):
-        raise ValueError(f"{name} must lie in [0, 1), got {value!r}.")
-    return value
-
-
-def _check_params(n_lots, n_classes, flip_far, flip_near):
-    n = _check_n_lots(n_lots)
-    if isinstance(n_classes, bool) or n_classes not in (2, 3):
-        raise ValueError(f"n_classes must be 2 or 3, got {n_classes!r}.")
-    far = _check_share(flip_far, "flip_far")
-    near = _check_share(flip_near, "flip_near")
-    return n, int(n_classes), far, near
-
-
-def _check_random_state(random_state):
-    if random_state is None:
-        return np.random.default_rng(), None
-    if isinstance(random_state, np.random.Generator):
-        return random_state, None
-    if isinstance(random_state, numbers.Integral) and not isinstance(random_state, bool):
-        seed = int(random_state)
-        if seed < 0:
-            raise ValueError(f"random_state must be non-negative, got {seed}.")
-        return np.random.default_rng(seed), seed
-    raise TypeError(
-        "random_state must be None, a non-negative int or a numpy.random.Generator, "
-        f"got {random_state!r}."
-    )
-
-
-# --------------------------------------------------------------------------
-# simulation
-# --------------------------------------------------------------------------
-
-
-def _draw_measurements(n, rng):
-    """Correlated intake measurements, already rounded to recording precision.
-
-    Returns
-    -------
-    orchard : ndarray of shape (n,), int
-        Orchard block codes in ``[0, 5)``.
-    M : ndarray of shape (7, n), float64
-        One row per feature, in the order of ``FEATURES``, original scale.
-        Feature-major because every consumer reads whole columns.
-    """
-    orchard = rng.integers(0, len(_ORCHARDS), size=n)
-    # The seven noise rows are turned into the seven measurements in place:
-    # at a million lots, fresh temporaries cost more than the arithmetic.
-    M = rng.standard_normal((7, n))
-    firmness, brix, starch, days, mass, bruise, temp = M
-    ripeness = rng.standard_normal(n)
-
-    np.multiply(days, 9.0, out=days)
-    days += 145.0
-    days += np.asarray(_ORCHARD_DAY_SHIFT)[orchard]
-    np.clip(np.rint(days, out=days), 120, 170, out=days)
-
-    # Ripeness tracks the calendar but not exactly (site and weather).
-    ripeness *= 0.6
-    ripeness += (days - 145.0) / 9.0
-
-    starch *= 0.8
-    starch += 4.5 + 1.3 * ripeness
-    np.clip(np.rint(starch, out=starch), 1, 8, out=starch)
-
-    mass *= 25.0
-    mass += 190.0
-    mass += np.asarray(_ORCHARD_MASS_SHIFT)[orchard]
-    np.clip(np.rint(mass, out=mass), 120, 260, out=mass)
-
-    firmness *= 5.0
-    firmness += 71.0 - 5.0 * ripeness - 0.04 * (mass - 190.0)
-    np.clip(np.round(firmness, 1, out=firmness), 50.0, 90.0, out=firmness)
-
-    brix *= 0.9
-    brix += 13.0 + 0.6 * ripeness
-    np.clip(np.round(brix, 1, out=brix), 10.0, 16.0, out=brix)
-
-    bruise[:] = rng.gamma(1.5, 2.0 * np.exp(0.15 * ripeness))
-    np.clip(np.round(bruise, 1, out=bruise), 0.0, 15.0, out=bruise)
-
-    temp *= 3.5
-    temp += 14.0
-    np.clip(np.round(temp, 1, out=temp), 2.0, 28.0, out=temp)
-    return orchard, M
-
-
-def _truth_record(n_classes):
-    """Plain-python description of the true model (goes into ``attrs``)."""
-    spec = _TRUTH[n_classes]
-    coef_std, coef_orig, icpt_std, icpt_orig = {}, {}, {}, {}
-    for cls in spec["classes"]:
-        if cls == spec["reference"]:
-            beta = (0.0,) * len(FEATURES)
-            alpha = 0.0
-        else:
-            beta = spec["coef"][cls]
-            alpha = spec["intercept"][cls]
-        coef_std[cls] = {f: float(b) for f, b in zip(FEATURES, beta, strict=True)}
-        coef_orig[cls] = {f: float(b / s) for f, b, s in zip(FEATURES, beta, _SCALE, strict=True)}
-        icpt_std[cls] = float(alpha)
-        icpt_orig[cls] = float(
-            alpha - sum(b * c / s for b, c, s in zip(beta, _CENTER, _SCALE, strict=True))
-        )
-    return {
-        "classes": list(spec["classes"]),
-        "reference_class": spec["reference"],
-        "features": list(FEATURES),
-        "noise_features": list(NOISE_FEATURES),
-        "feature_center": {f: float(c) for f, c in zip(FEATURES, _CENTER, strict=True)},
-        "feature_scale": {f: float(s) for f, s in zip(FEATURES, _SCALE, strict=True)},
-        "coef_standardised": coef_std,
-        "intercept_standardised": icpt_std,
-        "coef_original": coef_orig,
-        "intercept_original": icpt_orig,
-    }
-
-
-def _standardise(M, truth):
-    """``(x - center) / scale`` of feature-major ``M``, shape (d, n)."""
-    center = np.array([truth["feature_center"][f] for f in truth["features"]])
-    scale = np.array([truth["feature_scale"][f] for f in truth["features"]])
-    Z = M - center[:, None]
-    Z /= scale[:, None]
-    return Z
-
-
-def _linear_predictor(Z, truth):
-    """True linear predictor of every class, shape (n, K); reference column 0.
-
-    ``Z`` is the standardised feature-major matrix, shape (d, n). Summed
-    feature by feature rather than by a matrix product so that every row's
-    value is independent of the others: the generator and
-    :func:`orchard_ground_truth` (on any subset of rows) then agree bit for
-    bit.
-    """
-    classes = truth["classes"]
-    eta = np.zeros((Z.shape[1], len(classes)))
-    for k, c in enumerate(classes):
-        col = np.full(Z.shape[1], truth["intercept_standardised"][c])
-        for j, f in enumerate(truth["features"]):
-            beta = truth["coef_standardised"][c][f]
-            if beta != 0.0:
-                col += beta * Z[j]
-        eta[:, k] = col
-    return eta
-
-
-def _margins(eta, y):
-    """Clean-label margin and gap between the two largest linear predictors.
-
-    Parameters
-    ----------
-    eta : ndarray of shape (n, K)
-    y : ndarray of shape (n,), int in ``[0, K)``
-
-    Returns
-    -------
-    margin : ndarray of shape (n,)
-        ``eta[y] - max_{k != y} eta[k]``; large and positive when the truth
-        is confident in the clean label.
-    gap : ndarray of shape (n,), >= 0
-        Distance (in log-odds) to the nearest decision boundary.
-    """
-    rows = np.arange(eta.shape[0])
-    own = eta[rows, y]
-    others = eta.copy()
-    others[rows, y] = -np.inf
-    margin = own - others.max(axis=1)
-    top2 = np.partition(eta, eta.shape[1] - 2, axis=1)[:, -2:]
-    gap = top2[:, 1] - top2[:, 0]
-    return margin, gap
-
-
-def split_halves(gap):
-    """Far and near halves of the rows by distance to the boundary.
-
-    Parameters
-    ----------
-    gap : ndarray of shape (n,)
-
-    Returns
-    -------
-    far, near : ndarray of int
-        Sorted row indices; ``far`` holds the ``n // 2`` largest gaps (ties
-        broken by row order).
-    """
-    order = np.argsort(-gap, kind="stable")
-    half = gap.size // 2
-    return np.sort(order[:half]), np.sort(order[half:])
-
-
-def flip_counts(n, flip_far, flip_near):
-    """Exact numbers of far and near flips for ``n`` rows."""
-    n_far = n // 2
-    return round(flip_far * n_far), round(flip_near * (n - n_far))
-
-
-def _simulate(n, n_classes, flip_far, flip_near, rng):
-    truth = _truth_record(n_classes)
-    orchard, M = _draw_measurements(n, rng)
-    eta = _linear_predictor(_standardise(M, truth), truth)
-    prob = softmax(eta, axis=1)
-
-    u = rng.random(n)
-    # Inverse-CDF draw; the last class also catches u beyond a rounded cumsum.
-    y_clean = np.minimum((u[:, None] >= np.cumsum(prob, axis=1)).sum(axis=1), n_classes - 1)
-
-    margin, gap = _margins(eta, y_clean)
-    k_far, k_near = flip_counts(n, flip_far, flip_near)
-    far_half, near_half = split_halves(gap)
-    confident = far_half[margin[far_half] > 0]
-    # Almost every far-half row agrees with the truth; should too few do,
-    # the rest of the half makes up the count.
-    pool = confident if confident.size >= k_far else far_half
-    far = np.sort(rng.choice(pool, size=k_far, replace=False))
-    near = np.sort(rng.choice(near_half, size=k_near, replace=False))
-
-    y = y_clean.copy()
-    flipped = np.concatenate([far, near])
-    y[flipped] = (y_clean[flipped] + rng.integers(1, n_classes, size=flipped.size)) % n_classes
-    return {
-        "truth": truth,
-        "orchard": orchard,
-        "M": M,
-        "y": y,
-        "y_clean": y_clean,
-        "far": far,
-        "near": near,
-    }
-
-
-def _lot_ids(n):
-    width = max(4, len(str(n)))
-    return [f"L{i:0{width}d}" for i in range(1, n + 1)]
-
-
-# --------------------------------------------------------------------------
-# public API
-# --------------------------------------------------------------------------
 
 
 def make_orchard_lots(n_lots=400, *, n_classes=2, flip_far=0.20, flip_near=0.10, random_state=0):
@@ -436,7 +146,8 @@ def make_orchard_lots(n_lots=400, *, n_classes=2, flip_far=0.20, flip_near=0.10,
     ----------
     n_lots : int, default=400
         Number of rows, at least 10 (an integral float such as ``1e6`` is
-        accepted). Vectorised: a million lots take about a second.
+        accepted). Vectorised, so large frames for benchmarks are cheap to
+        simulate (timings in benchmarks/README.md).
     n_classes : {2, 3}, default=2
         2: ``storage_grade`` in ``{"early_sale", "long_storage"}``;
         3: in ``{"fresh_market", "juice", "long_storage"}``.
@@ -496,17 +207,17 @@ def make_orchard_lots(n_lots=400, *, n_classes=2, flip_far=0.20, flip_near=0.10,
     >>> df.attrs["n_corrupted"]
     {'far': 20, 'near': 10}
     """
-    n, n_classes, flip_far, flip_near = _check_params(n_lots, n_classes, flip_far, flip_near)
-    rng, seed = _check_random_state(random_state)
-    sim = _simulate(n, n_classes, flip_far, flip_near, rng)
+    n, n_classes, flip_far, flip_near = check_params(n_lots, n_classes, flip_far, flip_near)
+    rng, seed = check_random_state(random_state)
+    sim = simulate(n, n_classes, flip_far, flip_near, rng)
     truth = sim["truth"]
     classes = np.array(truth["classes"], dtype=object)
     M = sim["M"]
-    lot_id = _lot_ids(n)
+    lot_id = lot_ids(n)
 
     columns = {
         "lot_id": lot_id,
-        "orchard": np.array(_ORCHARDS, dtype=object)[sim["orchard"]],
+        "orchard": np.array(ORCHARDS, dtype=object)[sim["orchard"]],
     }
     for j, name in enumerate(FEATURES):
         is_count = name in ("starch_index", "days_since_bloom", "fruit_mass_g")
@@ -586,31 +297,20 @@ def orchard_arrays(
     y : ndarray of shape (n_lots,), int64 in ``[0, n_classes)``
         Index into the sorted class labels (binary: 1 = ``long_storage``).
     """
-    n, n_classes, flip_far, flip_near = _check_params(n_lots, n_classes, flip_far, flip_near)
+    n, n_classes, flip_far, flip_near = check_params(n_lots, n_classes, flip_far, flip_near)
     if isinstance(d_extra, bool) or not isinstance(d_extra, numbers.Integral):
         raise TypeError(f"d_extra must be a non-negative int, got {d_extra!r}.")
     d_extra = operator.index(d_extra)
     if d_extra < 0:
         raise ValueError(f"d_extra must be non-negative, got {d_extra}.")
-    rng, _ = _check_random_state(random_state)
-    sim = _simulate(n, n_classes, flip_far, flip_near, rng)
-    M = _standardise(sim["M"], sim["truth"]) if standardise else sim["M"]
+    rng, _ = check_random_state(random_state)
+    sim = simulate(n, n_classes, flip_far, flip_near, rng)
+    M = to_standard_scale(sim["M"], sim["truth"]) if standardise else sim["M"]
     X = np.empty((n, len(FEATURES) + d_extra))
     X[:, : len(FEATURES)] = M.T
     if d_extra:
         X[:, len(FEATURES) :] = rng.standard_normal((n, d_extra))
     return X, sim["y"].astype(np.int64)
-
-
-def _require_truth(df):
-    attrs = getattr(df, "attrs", None)
-    if not isinstance(attrs, dict) or attrs.get("scenario") != "orchard_lots":
-        raise ValueError(
-            "df carries no orchard ground truth in df.attrs; pass a frame made by "
-            "make_orchard_lots (operations that drop attrs, such as some merges "
-            "and concatenations, lose it)."
-        )
-    return attrs
 
 
 def orchard_ground_truth(df):
@@ -644,11 +344,11 @@ def orchard_ground_truth(df):
           >= 0 (small = near the decision boundary);
         - binary only, ``true_logit``: true log-odds of ``long_storage``.
     """
-    attrs = _require_truth(df)
+    attrs = require_truth(df)
     classes = list(attrs["classes"])
     features = list(attrs["features"])
     M = np.array([df[f].to_numpy(dtype=np.float64) for f in features])
-    eta = _linear_predictor(_standardise(M, attrs), attrs)
+    eta = linear_predictor(to_standard_scale(M, attrs), attrs)
     prob = softmax(eta, axis=1)
 
     lot_id = df[attrs["id_column"]].astype(object).to_numpy()
@@ -662,7 +362,7 @@ def orchard_ground_truth(df):
     )
     code = {c: k for k, c in enumerate(classes)}
     y_clean = np.array([code[c] for c in clean], dtype=np.intp)
-    margin, gap = _margins(eta, y_clean)
+    margin, gap = margins(eta, y_clean)
 
     out = {
         "lot_id": lot_id,
@@ -701,7 +401,7 @@ def orchard_true_coefficients(df):
         ``df.set_index("parameter")`` lines a binary table up with a fitted
         coefficient table.
     """
-    attrs = _require_truth(df)
+    attrs = require_truth(df)
     classes = list(attrs["classes"])
     if len(classes) == 2:
         classes = [c for c in classes if c != attrs["reference_class"]]
