@@ -13,15 +13,15 @@ from ._checks.inputs import check_bool, check_positive_float, check_positive_int
 from ._fit.likelihoods import BinaryLogistic, MultinomialLogistic
 from ._fit.newton import NewtonProblem, solve_map
 from ._kernels.config import serial_kernels
-from ._kernels.tempered import (
+from ._linear.design import LinearDesign
+from ._linear.sources import dask_aware, fit_design, is_out_of_core
+from ._linear.threads import passes_own_threads
+from .tempered_functions import (
     bitempered_loss,
     bitempered_loss_binary,
     bitempered_loss_warm,
     tempered_softmax,
 )
-from ._linear.design import LinearDesign
-from ._linear.sources import dask_aware, fit_design, is_out_of_core
-from ._linear.threads import passes_own_threads
 
 # Rows of the sample on which the convex (t1 = t2 = 1) start is fitted when
 # the data are larger.
