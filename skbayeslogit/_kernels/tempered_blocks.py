@@ -21,16 +21,20 @@ import numpy as np
 from .config import jit
 from .tempered_math import (
     EPS,
-    FIXED_POINT_MAXITER,
-    FIXED_POINT_SPARE,
-    NEWTON_MAXITER,
     chunk_bounds,
     integer_power,
     ipow_select,
     row_max,
     upper_bracket,
 )
-from .tempered_rows import fill_probabilities, newton_step, newton_step_plain
+from .tempered_rows import (
+    FIXED_POINT_MAXITER,
+    FIXED_POINT_SPARE,
+    NEWTON_MAXITER,
+    fill_probabilities,
+    newton_step,
+    newton_step_plain,
+)
 
 # Rows solved together by the block solver.  The loops over a block's rows
 # are innermost, so LLVM vectorises them (4 doubles per AVX2 instruction)

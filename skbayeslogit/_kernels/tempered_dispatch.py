@@ -4,10 +4,10 @@ Two kernel families: "general" solves one row at a time for any temperature
 (:mod:`.tempered_rows`, :mod:`.tempered_loss`); "blocked" solves rows in
 blocks for the integer-power temperatures (:mod:`.tempered_blocks`,
 :mod:`.tempered_loss_blocks`).  Python picks the family, so a fit compiles
-only the one it runs (each is several seconds of LLVM time).  Every launch
-goes through :func:`skbayeslogit._kernels.config.launch` (serial below a
-size, inside ``serial_kernels()`` and when another thread holds the parallel
-lock).
+only the one it runs (each is a long LLVM compile, see benchmarks/README.md).
+Every launch goes through :func:`skbayeslogit._kernels.config.launch`
+(serial below a size, inside ``serial_kernels()`` and when another thread
+holds the parallel lock).
 
 The functions here take arrays as the kernels want them and never validate:
 C-contiguous writeable float64 activations (and int64 class indices), so

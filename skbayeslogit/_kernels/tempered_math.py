@@ -43,9 +43,6 @@ import numpy as np
 
 EPS = float(np.finfo(np.float64).eps)
 HUGE = float(np.finfo(np.float64).max)
-NEWTON_MAXITER = 200
-FIXED_POINT_MAXITER = 50
-FIXED_POINT_SPARE = 3.0
 
 
 @numba.njit(nogil=True)

@@ -48,9 +48,6 @@ import numpy as np
 from .config import jit
 from .tempered_math import (
     EPS,
-    FIXED_POINT_MAXITER,
-    FIXED_POINT_SPARE,
-    NEWTON_MAXITER,
     chunk_bounds,
     integer_power,
     row_max,
@@ -58,6 +55,24 @@ from .tempered_math import (
     texp_slope,
     upper_bracket,
 )
+
+# Iteration limits of the normaliser's solvers (here and in tempered_blocks).
+NEWTON_MAXITER = 200
+FIXED_POINT_MAXITER = 50
+# The fixed point hands over to Newton once its rate predicts more than this
+# many further steps.
+FIXED_POINT_SPARE = 3.0
+
+
+@numba.njit(nogil=True)
+def _add_term(z, omt, n, f, fp):
+    # One class's p and p**t added to the sums f and fp, where it is inside
+    # the support (z > -1).
+    if z > -1.0:
+        p, pt = texp_slope(z, omt, n)
+        f += p
+        fp += pt
+    return f, fp
 
 
 @numba.njit(nogil=True)
@@ -67,30 +82,29 @@ def _f_and_slope(row, m, lam, t, n):
     f = -1.0
     fp = 0.0
     for i in range(row.shape[0]):
-        z = omt * ((row[i] - m) - lam)
-        if z > -1.0:
-            p, pt = texp_slope(z, omt, n)
-            f += p
-            fp += pt
+        f, fp = _add_term(omt * ((row[i] - m) - lam), omt, n, f, fp)
     return f, fp
 
 
 @numba.njit(nogil=True)
 def _f_and_slope2(d, lam, t, n):
+    # The same for the two shifted activations (0, d), without a loop.
     omt = 1.0 - t
-    f = -1.0
-    fp = 0.0
-    z = -omt * lam
-    if z > -1.0:
-        p, pt = texp_slope(z, omt, n)
-        f += p
-        fp += pt
-    z = omt * (d - lam)
-    if z > -1.0:
-        p, pt = texp_slope(z, omt, n)
-        f += p
-        fp += pt
-    return f, fp
+    f, fp = _add_term(-omt * lam, omt, n, -1.0, 0.0)
+    return _add_term(omt * (d - lam), omt, n, f, fp)
+
+
+@numba.njit(nogil=True)
+def _bracketed(lam, f, new, lo, hi):
+    # The bracket [lo, hi] shrunk at lam (the root is right of lam when
+    # f > 0), and the step `new`, replaced by bisection when it leaves it.
+    if f > 0.0:
+        lo = lam
+    else:
+        hi = lam
+    if not (new > lo and new < hi):
+        new = lo + 0.5 * (hi - lo)
+    return new, lo, hi
 
 
 @numba.njit(nogil=True)
@@ -103,32 +117,20 @@ def newton_step(lam, f, fp, t, lo, hi):
     # root monotonically, in fewer steps.  A step leaving the bracket (from
     # rounding, or zero slope outside the support for t < 1) is replaced by
     # bisection.
-    if f > 0.0:
-        lo = lam
-    else:
-        hi = lam
-    new = lo - 1.0
+    new = -np.inf
     if fp > 0.0 and f > -1.0:
         big_f = f + 1.0
         e = math.expm1((1.0 - t) * math.log(big_f))
         new = lam + big_f * e / ((1.0 - t) * (1.0 + e) * fp)
-    if not (new > lo and new < hi):
-        new = lo + 0.5 * (hi - lo)
-    return new, lo, hi
+    return _bracketed(lam, f, new, lo, hi)
 
 
 @numba.njit(nogil=True)
 def newton_step_plain(lam, f, fp, lo, hi):
     # Newton on f itself: for two classes the extra log and expm1 of
     # newton_step cost more than the step they save.
-    if f > 0.0:
-        lo = lam
-    else:
-        hi = lam
-    new = lam + f / fp if fp > 0.0 else lo - 1.0
-    if not (new > lo and new < hi):
-        new = lo + 0.5 * (hi - lo)
-    return new, lo, hi
+    new = lam + f / fp if fp > 0.0 else -np.inf
+    return _bracketed(lam, f, new, lo, hi)
 
 
 @numba.njit(nogil=True)
@@ -252,7 +254,7 @@ def _normalise_one(a, t, n, p, lam, want_p, r):
 
 # Each kernel family's serial kernel is its row-range function itself, and
 # the parallel kernel calls it on chunks: a wrapper layer would be one more
-# module for LLVM to optimise with everything inlined (seconds per kernel).
+# module for LLVM to optimise with everything inlined (a long compile).
 # Both take (..., start, stop, n_chunks) so that launch() can hand them the
 # same arguments; the parallel one splits [start, stop) into n_chunks
 # chunks, the serial one ignores n_chunks (the parallel one passes its own
