@@ -1,7 +1,7 @@
 """Benchmark: the numba tempered-softmax normaliser against numpy.
 
 The reference is a vectorised numpy implementation of the *same* algorithm as
-:mod:`skbayeslogit._kernels.tempered` (row shift, the fixed point of Amid et al.,
+:mod:`skbayeslogit._kernels.tempered_rows` (row shift, the fixed point of Amid et al.,
 NeurIPS 2019, for t > 1 with the same switch rule, then bracketed Newton on
 log_t(sum p) -- plain Newton for K = 2 -- with the same stopping rules and the
 same integer-power evaluation of exp_t when 1/(1 - t) is an integer),
@@ -19,7 +19,7 @@ import time
 
 import numpy as np
 
-from skbayeslogit._kernels.tempered import tempered_normaliser
+from skbayeslogit.tempered_functions import tempered_normaliser
 
 _EPS = np.finfo(np.float64).eps
 _HUGE = np.finfo(np.float64).max

@@ -1,31 +1,22 @@
 """Label-noise-robust linear classifier: the bi-tempered logistic loss."""
 
-import contextlib
 import numbers
 import warnings
 
 import numpy as np
-from scipy.optimize import minimize
 from sklearn.exceptions import ConvergenceWarning
 
-from ._base import LinearClassifierBase, free_parameter_map
+from ._base import LinearClassifierBase
 from ._checks.inputs import check_bool, check_positive_float, check_positive_int, check_scale
+from ._fit.lbfgs import minimize_scaled
 from ._fit.likelihoods import BinaryLogistic, MultinomialLogistic
-from ._fit.newton import NewtonProblem, solve_map
-from ._kernels.config import serial_kernels
-from ._kernels.tempered import (
-    bitempered_loss,
-    bitempered_loss_binary,
-    bitempered_loss_warm,
-    tempered_softmax,
-)
-from ._linear.design import LinearDesign
-from ._linear.sources import dask_aware, fit_design, is_out_of_core
+from ._fit.newton import solve_map
+from ._fit.tempered_inputs import tempered_fit_data
+from ._fit.tempered_likelihood import BiTemperedLikelihood
+from ._linear.scaling import ColumnScaling
+from ._linear.sources import dask_aware
 from ._linear.threads import passes_own_threads
-
-# Rows of the sample on which the convex (t1 = t2 = 1) start is fitted when
-# the data are larger.
-_CONVEX_START_ROWS = 20_000
+from .tempered_functions import tempered_softmax
 
 
 def _check_temperature(name, value, low, high, why):
@@ -35,119 +26,6 @@ def _check_temperature(name, value, low, high, why):
     if not (np.isfinite(value) and low <= value <= high):
         raise ValueError(f"{name} must be in [{low:g}, {high:g}] ({why}); got {value!r}.")
     return value
-
-
-class _ColumnScaling:
-    """Map between theta and the parameters u of centred, unit-spread columns.
-
-    With column centres m_j and spreads s_j (weighted mean and sd; without
-    an intercept no centring, and s_j the weighted root mean square), the
-    linear predictor sum_j x_j theta_kj + b_k equals
-    sum_j (x_j - m_j) / s_j u_kj + c_k for u_kj = s_j theta_kj and
-    c_k = b_k + sum_j m_j theta_kj. A column with zero spread keeps s_j = 1.
-    """
-
-    def __init__(self, X, w, design):
-        self.q, self.d = design.q, design.d
-        self.fit_intercept = design.fit_intercept
-        if getattr(design, "out_of_core", False):
-            # The same weighted moments, merged from the validation pass.
-            self.centre, spread = design.column_moments(centred=self.fit_intercept)
-        else:
-            total = float(w.sum())
-            self.centre = (w @ X) / total if self.fit_intercept else np.zeros(self.d)
-            # Blocks of rows: no temporary the size of X (np.average made
-            # two, 35 ms at n = 1e5, d = 20).
-            square = np.zeros(self.d)
-            rows = max(1, (1 << 20) // (8 * max(self.d, 1)))
-            for start in range(0, X.shape[0], rows):
-                block = X[start : start + rows] - self.centre
-                np.square(block, out=block)
-                square += w[start : start + rows] @ block
-            spread = np.sqrt(square / total)
-        self.spread = np.where(spread > 0, spread, 1.0)
-
-    def _split(self, v):
-        W = v[: self.q * self.d].reshape(self.q, self.d)
-        b = v[self.q * self.d :]
-        return W, b
-
-    def to_theta(self, u):
-        Wu, c = self._split(u)
-        W = Wu / self.spread
-        parts = [W.ravel()]
-        if self.fit_intercept:
-            parts.append(c - W @ self.centre)
-        return np.concatenate(parts)
-
-    def to_u(self, theta):
-        W, b = self._split(theta)
-        parts = [(W * self.spread).ravel()]
-        if self.fit_intercept:
-            parts.append(b + W @ self.centre)
-        return np.concatenate(parts)
-
-    def gradient_to_u(self, grad):
-        """Chain rule: the gradient in theta mapped to the gradient in u."""
-        gW, gb = self._split(grad)
-        if self.fit_intercept:
-            gW = gW - np.outer(gb, self.centre)
-        parts = [(gW / self.spread).ravel()]
-        if self.fit_intercept:
-            parts.append(gb)
-        return np.concatenate(parts)
-
-
-class _TemperedPointwise:
-    """The bi-tempered loss as a pointwise function of eta, for blocked passes.
-
-    ``value_grad(y, eta, w)`` gives the weighted loss sum of a block and its
-    gradient with respect to eta, weights included, by the same kernels and
-    the same arithmetic as the in-memory objective.
-    """
-
-    def __init__(self, t1, t2, label_smoothing, q):
-        self.t1, self.t2, self.ls, self.q = t1, t2, label_smoothing, q
-
-    def value_grad(self, y, eta, w):
-        if self.q == 1:
-            loss, dloss = bitempered_loss_binary(eta, y, self.t1, self.t2, self.ls)
-            return float(w @ loss), dloss * w
-        loss, dloss = bitempered_loss(eta, y, self.t1, self.t2, self.ls)
-        return float(w @ loss), dloss * w[:, None]
-
-
-class _TemperedRows:
-    """The bi-tempered loss as the likelihood of an in-memory gradient pass.
-
-    :meth:`LinearDesign.loss_grad` hands it row spans on worker threads (each
-    span's predictor, loss and gradient while the span of X is in cache);
-    the kernels run serially inside a worker.  Each row's tempered-softmax
-    normaliser is kept from one pass to the next as Newton's starting point
-    (:func:`bitempered_loss_warm`); ``warm`` says whether the kept values
-    are valid, and is set by the caller between passes, never inside one.
-    """
-
-    wants_rows = True
-
-    def __init__(self, t1, t2, label_smoothing, q, n):
-        self.t1, self.t2, self.ls, self.q = t1, t2, label_smoothing, q
-        # Flops a row costs, compared with the pass's BLAS work (measured:
-        # about 0.5 us a binary row, 2 us a 10-class row, one thread).
-        self.work_per_row = 1000.0 * (q + 1)
-        self.normalisers = np.empty(n) if q > 1 else None
-        self.warm = False
-
-    def loss_grad(self, y, eta, w, rows):
-        with serial_kernels():
-            if self.q == 1:
-                loss, dloss = bitempered_loss_binary(eta, y, self.t1, self.t2, self.ls)
-                return float(w @ loss), dloss * w
-            start, stop = rows
-            loss, dloss = bitempered_loss_warm(
-                eta, y, self.t1, self.t2, self.ls, self.normalisers[start:stop], self.warm
-            )
-        return float(w @ loss), dloss * w[:, None]
 
 
 class TemperedLogisticClassifier(LinearClassifierBase):
@@ -286,92 +164,39 @@ class TemperedLogisticClassifier(LinearClassifierBase):
         """
         self._check_params()
         previous = self._previous_parameters()
-        if is_out_of_core(X, y, sample_weight):
-            # Memory-mapped or dask input: each objective evaluation is one
-            # blocked pass of the same kernels (see _sources).
-            design = fit_design(self, X, y, sample_weight, self.fit_intercept)
-            X = codes = w = None
-        else:
-            X, codes, w = self._validate_fit_data(X, y, sample_weight)
-            design = LinearDesign(
-                X, 1 if len(self.classes_) == 2 else len(self.classes_), self.fit_intercept
+        data = tempered_fit_data(self, X, y, sample_weight)
+        design = data.design
+        prior = design.layout.prior_precision(self._scale)
+        theta0 = self._starting_point(data, prior, previous)
+        likelihood = BiTemperedLikelihood(
+            self._t1, self._t2, self.label_smoothing, design.q, design.n
+        )
+        # L-BFGS works on the parameters of centred, unit-spread columns (see
+        # _fit.lbfgs): its steps and gradient test then mean the same
+        # whatever the units of the features and of the weights.
+        scaling = ColumnScaling(*data.column_moments(design.fit_intercept), design.layout)
+        with data.solving():
+            result = minimize_scaled(
+                data.objective(likelihood, prior),
+                theta0,
+                scaling,
+                design.n,
+                data.total_weight,
+                self.max_iter,
+                self.tol,
             )
-        q = design.q
-        prior = np.zeros(design.p_full)
-        if self._scale is not None:
-            prior[: design.n_coef] = 1.0 / self._scale**2
-
-        if previous is not None and previous.shape == (design.p_full,):
-            theta0 = previous
-        elif self.start == "convex":
-            theta0 = self._convex_start(design, codes, w, prior)
-        else:
-            theta0 = np.zeros(design.p_full)
-
-        labels = None if codes is None else (codes.astype(np.float64) if q == 1 else codes)
-        # L-BFGS is not invariant to the units of the features or of the
-        # weights: its first step, its curvature pairs and its gradient test
-        # are in parameter units. It therefore works on the parameters u of
-        # centred, unit-spread columns and on the objective rescaled as if
-        # the weights averaged 1 (exactly the sum for unit weights, which
-        # keeps scipy's ftol test, relative only above |f| = 1, where it
-        # was); the minimiser in theta is the same, but features scaled by
-        # 1e-8 or 1e8 (or weights by 1e300) no longer stop it early or
-        # overflow it.
-        scaling = _ColumnScaling(X, w, design)
-        n_rows = design.n
-        unit = n_rows / float(design.total_weight if w is None else w.sum())
-        pointwise = _TemperedPointwise(self._t1, self._t2, self.label_smoothing, q)
-        rows = _TemperedRows(self._t1, self._t2, self.label_smoothing, q, n_rows)
-
-        def objective_out_of_core(u):
-            theta = scaling.to_theta(u)
-            value, grad = design.value_grad(pointwise, theta)
-            value += 0.5 * float(theta @ (prior * theta))
-            grad = grad + prior * theta
-            return value * unit, scaling.gradient_to_u(grad) * unit
-
-        def objective(u):
-            theta = scaling.to_theta(u)
-            value, grad, _ = design.loss_grad(rows, labels, w, theta)
-            # Successive evaluations are at nearby parameters: from now on
-            # each row's normaliser starts from its previous value.
-            rows.warm = True
-            value += 0.5 * float(theta @ (prior * theta))
-            grad = grad + prior * theta
-            return value * unit, scaling.gradient_to_u(grad) * unit
-
-        # In memory, every pass runs on the pass's worker threads with BLAS
-        # at one thread; holding that for the whole solve saves resetting
-        # BLAS's thread count around each pass.  Out-of-core passes use
-        # BLAS's own threads.
-        hold = passes_own_threads() if w is not None else contextlib.nullcontext()
-        with hold:
-            result = minimize(
-                objective if w is not None else objective_out_of_core,
-                scaling.to_u(theta0),
-                jac=True,
-                method="L-BFGS-B",
-                options={
-                    "maxiter": self.max_iter,
-                    "gtol": self.tol * n_rows,
-                    "ftol": 1e3 * np.finfo(float).eps,
-                    "maxcor": 20,
-                },
-            )
-        if not result.success and result.nit >= self.max_iter:
+        if result.stopped_at_limit:
             warnings.warn(
                 f"L-BFGS did not converge in {self.max_iter} iterations ({result.message}); "
                 "increase max_iter, standardise the features or strengthen prior_scale.",
                 ConvergenceWarning,
                 stacklevel=2,
             )
-        theta = self._canonical(design, scaling.to_theta(result.x))
-        W, b = design.split(theta)
+        W, b = design.layout.split(self._canonical(design.layout, result.theta))
         self.coef_ = np.array(W)
-        self.intercept_ = np.array(b) if self.fit_intercept else np.zeros(q)
-        self.loss_ = float(result.fun) / unit
-        self.n_iter_ = int(result.nit)
+        self.intercept_ = np.array(b)
+        self.loss_ = result.value
+        self.n_iter_ = result.n_iter
         return self
 
     def _previous_parameters(self):
@@ -382,51 +207,49 @@ class TemperedLogisticClassifier(LinearClassifierBase):
             parts.append(self.intercept_)
         return np.concatenate(parts)
 
-    def _convex_start(self, design, codes, w, prior):
+    def _starting_point(self, data, prior, previous):
+        """The previous fit's parameters (warm start), the convex start, or zeros."""
+        p_full = data.design.layout.p_full
+        if previous is not None and previous.shape == (p_full,):
+            return previous
+        if self.start == "convex":
+            return self._convex_start(data, prior)
+        return np.zeros(p_full)
+
+    def _convex_start(self, data, prior):
         """The t1 = t2 = 1 solution: penalised logistic regression by Newton."""
-        q = design.q
-        lik = BinaryLogistic() if q == 1 else MultinomialLogistic(q)
-        y = None if codes is None else (codes.astype(np.float64) if q == 1 else codes)
-        T = free_parameter_map(design, self._scale is not None, False)
-        problem = NewtonProblem(design, lik, y, w, prior, T)
-        out_of_core = getattr(design, "out_of_core", False)
-        if not out_of_core and design.n > _CONVEX_START_ROWS:
-            # The start only has to land in the right basin: the logistic
-            # fit on a row sample (weights rescaled to the full total) does,
-            # at a fraction of a full-data Newton solve.
-            problem = problem.subsample(_CONVEX_START_ROWS) or problem
+        layout = data.design.layout
+        q = layout.q
+        likelihood = BinaryLogistic() if q == 1 else MultinomialLogistic(q)
+        free_map = layout.free_map(self._scale is not None, False)
+        problem = data.start_problem(likelihood, prior, free_map)
         # passes_own_threads: as in the Laplace fit, BLAS stays at one thread
         # for the whole Newton solve (toggling it per pass made each small
-        # Cholesky wait ~50 ms for OpenBLAS's threads here).
+        # Cholesky wait for OpenBLAS's threads).
         with warnings.catch_warnings(), passes_own_threads():
             # Separation or a slow start is harmless here: L-BFGS carries on.
             warnings.simplefilter("ignore")
-            result = solve_map(problem, max_iter=50, tol=1e-6, warn=False)
-        theta = result.theta
+            theta = solve_map(problem, max_iter=50, tol=1e-6, warn=False).theta
         if not np.all(np.isfinite(theta)):
-            return np.zeros(design.p_full)
+            return np.zeros(layout.p_full)
         # Without a penalty and separated classes the logistic start runs
         # off to large norms; the bounded loss has no use for that.
-        if out_of_core:
-            x_max = float(np.max(design.stats["colmax"]))
-        else:
-            # max(|max|, |min|): no temporary the size of X.
-            x_max = max(abs(float(design.X.max())), abs(float(design.X.min())))
-        limit = 50.0 / max(x_max, 1e-12)
-        if np.max(np.abs(theta[: design.n_coef])) > limit:
-            theta = theta * (limit / np.max(np.abs(theta[: design.n_coef])))
+        limit = 50.0 / max(data.largest_feature(), 1e-12)
+        largest = np.max(np.abs(layout.slopes(theta)))
+        if largest > limit:
+            theta = theta * (limit / largest)
         return theta
 
-    def _canonical(self, design, theta):
+    def _canonical(self, layout, theta):
         """Centre the unidentified common shift of a multiclass fit."""
-        if design.q == 1:
+        if layout.q == 1:
             return theta
         theta = theta.copy()
-        W = theta[: design.n_coef].reshape(design.q, design.d)
+        W, b = layout.split(theta)
         if self._scale is None:
             W -= W.mean(axis=0)
-        if design.fit_intercept:
-            theta[design.n_coef :] -= theta[design.n_coef :].mean()
+        if layout.fit_intercept:
+            b -= b.mean()
         return theta
 
     # -- prediction ----------------------------------------------------------

@@ -25,7 +25,7 @@ from skbayeslogit import (
     ProbitClassifier,
     TemperedLogisticClassifier,
 )
-from skbayeslogit._kernels.tempered import (
+from skbayeslogit.tempered_functions import (
     bitempered_loss,
     bitempered_loss_binary,
     tempered_softmax,

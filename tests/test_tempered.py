@@ -198,3 +198,37 @@ def test_warm_start_continues_from_previous_fit():
     model.fit(X, y)
     assert model.n_iter_ <= 2
     np.testing.assert_allclose(model.coef_, first, atol=1e-6)
+
+
+@pytest.mark.parametrize(("n_classes", "t2"), [(2, 1.2), (2, 1.3), (3, 1.2), (3, 1.3)])
+def test_fit_objective_launches_kernels_without_input_checks(monkeypatch, n_classes, t2):
+    # The fit converts its labels once and calls the kernels directly: no
+    # objective evaluation goes through the checks of the public tempered
+    # functions.  Counters on those checks (and on the kernel launches, so
+    # that the test fails if the objective stops using these kernels).
+    from skbayeslogit import tempered_functions
+    from skbayeslogit._fit import tempered_likelihood
+
+    counts = {}
+
+    def counted(module, name):
+        original = getattr(module, name)
+
+        def wrapper(*args, **kwargs):
+            counts[name] = counts.get(name, 0) + 1
+            return original(*args, **kwargs)
+
+        monkeypatch.setattr(module, name, wrapper)
+
+    checks = ["check_scalar", "check_finite", "as_activations", "as_labels", "as_float_c"]
+    for name in checks:
+        counted(tempered_functions, name)
+    for name in ["binary_loss", "multiclass_loss"]:
+        counted(tempered_likelihood, name)
+    X, y = load_iris(return_X_y=True)
+    if n_classes == 2:
+        y = (y == 2).astype(int)
+    TemperedLogisticClassifier(t2=t2).fit(X, y)
+    launches = counts.get("binary_loss", 0) + counts.get("multiclass_loss", 0)
+    assert launches > 0
+    assert {name: counts.get(name, 0) for name in checks} == dict.fromkeys(checks, 0)

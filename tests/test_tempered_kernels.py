@@ -24,9 +24,11 @@ from scipy.differentiate import derivative, jacobian
 from scipy.optimize import brentq
 from scipy.special import log_softmax, softmax
 
-from skbayeslogit._kernels import tempered as tk
+from skbayeslogit import tempered_functions as tf
+from skbayeslogit._kernels import tempered_dispatch as tk
+from skbayeslogit._kernels import tempered_loss
 from skbayeslogit._kernels.config import PARALLEL_MIN_ELEMENTS
-from skbayeslogit._kernels.tempered import (
+from skbayeslogit.tempered_functions import (
     bitempered_loss,
     bitempered_loss_binary,
     exp_t,
@@ -140,15 +142,15 @@ def test_warm_started_normalisers_match_cold(t2):
     lam = np.empty(n)
     base = rng.normal(size=(n, k))
     for step, a in enumerate((3.0 * base, 3.0003 * base, 300.0 * base, 0.01 * base, 3.0 * base)):
-        loss, grad = tk.bitempered_loss_warm(a, y, 0.7, t2, 0.0, lam, step > 0)
+        loss, grad = tf.bitempered_loss_warm(a, y, 0.7, t2, 0.0, lam, step > 0)
         cold_loss, cold_grad = bitempered_loss(a, y, 0.7, t2)
         np.testing.assert_allclose(loss, cold_loss, rtol=1e-13, atol=1e-15)
         np.testing.assert_allclose(grad, cold_grad, rtol=1e-12, atol=1e-14)
         np.testing.assert_allclose(lam, tempered_normaliser(a, t2), rtol=1e-14)
     with pytest.raises(ValueError, match="2-D"):
-        tk.bitempered_loss_warm(a[0], y[0], 0.7, t2, 0.0, lam, True)
+        tf.bitempered_loss_warm(a[0], y[0], 0.7, t2, 0.0, lam, True)
     with pytest.raises(ValueError, match="normalisers"):
-        tk.bitempered_loss_warm(a, y, 0.7, t2, 0.0, lam[::2], True)
+        tf.bitempered_loss_warm(a, y, 0.7, t2, 0.0, lam[::2], True)
 
 
 def _sparsemax(z):
@@ -517,7 +519,7 @@ def test_workqueue_layer_concurrent_threads_and_fork_do_not_abort():
     # kernels in the child.
     code = """
         import os, threading, numpy as np, numba
-        from skbayeslogit._kernels.tempered import tempered_softmax, bitempered_loss
+        from skbayeslogit.tempered_functions import tempered_softmax, bitempered_loss
         rng = np.random.default_rng(0)
         a = rng.normal(size=(4000, 50)); y = rng.integers(0, 50, 4000)
         ref = tempered_softmax(a, 1.3)
@@ -552,11 +554,12 @@ def test_import_without_writable_cache_and_lazy_compilation():
     # Only the user-provided locator, pointed at a directory nobody (not even
     # root) can create: numba finds no cache location at all.
     code = """
-        import skbayeslogit._kernels.tempered as tk
-        kernel = tk._normalise_general_serial
+        import skbayeslogit._kernels.tempered_rows as tr
+        import skbayeslogit.tempered_functions as tf
+        kernel = tr.normalise_general_serial
         assert kernel.signatures == [], "compiled at import"
         assert type(kernel._cache).__name__ == "NullCache"
-        p = tk.tempered_softmax([[0.0, 1.0, 2.0]], 1.3)
+        p = tf.tempered_softmax([[0.0, 1.0, 2.0]], 1.3)
         assert abs(p.sum() - 1) < 1e-14
         assert len(kernel.signatures) == 1
         print("ok")
@@ -574,7 +577,7 @@ def test_import_without_writable_cache_and_lazy_compilation():
 
 def test_few_compiled_signatures():
     # Every call above converted its inputs to the same dtypes and layout.
-    kernels = [tk._binary_serial]
+    kernels = [tempered_loss.binary_serial]
     for family in ("general", "blocked"):
         kernels += [tk._NORMALISE_KERNELS[family][0], tk._LOSS_KERNELS[family][0]]
     for kernel in kernels:

@@ -1,0 +1,116 @@
+"""Which tempered kernel runs, and its serial or parallel launch.
+
+Two kernel families: "general" solves one row at a time for any temperature
+(:mod:`.tempered_rows`, :mod:`.tempered_loss`); "blocked" solves rows in
+blocks for the integer-power temperatures (:mod:`.tempered_blocks`,
+:mod:`.tempered_loss_blocks`).  Python picks the family, so a fit compiles
+only the one it runs (each is a long LLVM compile, see benchmarks/README.md).
+Every launch goes through :func:`skbayeslogit._kernels.config.launch`
+(serial below a size, inside ``serial_kernels()`` and when another thread
+holds the parallel lock).
+
+The functions here take arrays as the kernels want them and never validate:
+C-contiguous writeable float64 activations (and int64 class indices), so
+that each kernel compiles one signature; :mod:`skbayeslogit.tempered_functions`
+checks and converts user input, the fit converts its labels once.
+"""
+
+from __future__ import annotations
+
+import numba
+import numpy as np
+
+from .config import launch
+from .tempered_blocks import BLOCK, normalise_blocked_parallel, normalise_blocked_serial
+from .tempered_loss import (
+    binary_parallel,
+    binary_serial,
+    loss_general_parallel,
+    loss_general_serial,
+)
+from .tempered_loss_blocks import loss_blocked_parallel, loss_blocked_serial
+from .tempered_math import integer_power
+from .tempered_rows import normalise_general_parallel, normalise_general_serial
+
+__all__ = ["normalise", "multiclass_loss", "binary_indexed", "binary_loss"]
+
+
+def _kernel_family(k, t):
+    """'blocked' or 'general': the kernel family for K classes at temperature t.
+
+    The block solver covers the integer-power temperatures with K >= 2; the
+    others need log1p/exp per element, which do not vectorise here.
+    """
+    blocked = k >= 2 and t != 1.0 and integer_power.py_func(t) != 0
+    return "blocked" if blocked else "general"
+
+
+def _n_chunks(n):
+    # Enough chunks to balance the threads, each at least one block long.
+    return max(1, min(n // BLOCK, 8 * numba.get_num_threads()))
+
+
+# Looked up at each call (tests swap entries to watch the launches).
+_NORMALISE_KERNELS = {
+    "general": (normalise_general_serial, normalise_general_parallel),
+    "blocked": (normalise_blocked_serial, normalise_blocked_parallel),
+}
+_LOSS_KERNELS = {
+    "general": (loss_general_serial, loss_general_parallel),
+    "blocked": (loss_blocked_serial, loss_blocked_parallel),
+}
+
+
+def normalise(a, t, p, lam, want_p):
+    """Absolute normalisers of the rows of `a` (n, K) into `lam`; probabilities into `p`.
+
+    `p` is written only when `want_p` (otherwise any float64 (1, 1) array).
+    """
+    n = a.shape[0]
+    kernels = _NORMALISE_KERNELS[_kernel_family(a.shape[1], t)]
+    launch(*kernels, a.size, a, t, p, lam, want_p, 0, n, _n_chunks(n))
+
+
+def multiclass_loss(a, idx, yprob, use_index, t1, t2, ls, warm, lam, loss, grad):
+    """Bi-tempered loss (n,) and gradient (n, K) of activations `a` (n, K).
+
+    Labels are class indices `idx` (n,) when `use_index` (then `yprob` is any
+    float64 (1, K) array), else probability rows `yprob` (n, K) (then `idx`
+    is any int64 (1,) array).  `lam` (n,) holds absolute normalisers, read
+    as Newton's starting points when `warm` and overwritten.
+    """
+    n = a.shape[0]
+    kernels = _LOSS_KERNELS[_kernel_family(a.shape[1], t2)]
+    launch(
+        *kernels, a.size, a, idx, yprob, use_index, t1, t2, ls, warm, lam, loss, grad,
+        0, n, _n_chunks(n),
+    )  # fmt: skip
+
+
+def binary_indexed(t2):
+    """Whether :func:`binary_loss` at `t2` takes int64 class indices (0/1 labels)."""
+    return _kernel_family(2, t2) == "blocked"
+
+
+def binary_loss(a, y, t1, t2, ls, loss, grad):
+    """Bi-tempered loss (n,) and d loss / d a (n,) of the binary model, rows (0, a).
+
+    Labels `y` (n,): float64, the probability of class 1; or, where
+    :func:`binary_indexed` (integer-power `t2`), int64 class indices too.
+    Integer-power `t2` runs the blocked loss kernel on the (n, 1) view of `a`
+    (no pairs are packed); others the scalar binary rows.
+    """
+    n = a.shape[0]
+    if not binary_indexed(t2):
+        launch(binary_serial, binary_parallel, 2 * n, a, y, t1, t2, ls, loss, grad)
+        return
+    use_index = y.dtype == np.int64
+    if use_index:
+        idx, yprob = y, np.empty((1, 1))
+    else:
+        idx, yprob = np.zeros(1, dtype=np.int64), y.reshape(n, 1)
+    launch(
+        loss_blocked_serial, loss_blocked_parallel, 2 * n,
+        a.reshape(n, 1), idx, yprob, use_index, t1, t2, ls, False, np.empty(n), loss,
+        grad.reshape(n, 1), 0, n, _n_chunks(n),
+    )  # fmt: skip
