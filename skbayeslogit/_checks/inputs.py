@@ -242,8 +242,8 @@ def encode_labels(y):
 
     Integer and boolean labels whose range is small (at most
     ``_DENSE_CODE_RANGE`` and 2 n) are counted instead of sorted: one
-    ``bincount`` and one table lookup, O(n) rather than O(n log n) (about
-    20 ms saved per million rows). Other labels go to ``np.unique``.
+    ``bincount`` and one table lookup, O(n) rather than O(n log n). Other
+    labels go to ``np.unique``.
 
     Parameters
     ----------

@@ -3,8 +3,8 @@
 A likelihood here knows nothing about features or coefficients: it maps the
 linear predictor ``eta`` of a block of rows to the weighted negative
 log-likelihood, its first derivative ``g`` and its second derivative ``h``
-with respect to ``eta``. The design matrix (``_design.py``) maps these to
-coefficient space and the Newton solver (``_newton.py``) does the rest, so a
+with respect to ``eta``. The design matrix (``_linear.design``) maps these to
+coefficient space and the Newton solver (``newton``) does the rest, so a
 new model needs one class here and one thin estimator.
 
 Conventions
@@ -20,7 +20,7 @@ non-negative).
 
 Each likelihood has ``loss``, ``loss_grad`` (loss and ``g``) and
 ``derivatives`` (loss, ``g`` and ``h``): the solver's gradient-only passes
-(``_newton``) call ``loss_grad``, which skips ``h``, the costly part for K
+(``newton``) call ``loss_grad``, which skips ``h``, the costly part for K
 classes (K(K+1)/2 per row).
 """
 
@@ -75,7 +75,7 @@ class BinaryLogistic(_SymmetricBinaryLink):
     def loss(self, y, eta, w):
         """Weighted sum of -log p(y | eta); a float."""
         # -log p = softplus(eta) - y * eta, exact for either label and any eta;
-        # one fused compiled loop (see _logistic_kernel).
+        # one fused compiled loop (see _kernels.logistic).
         return logistic_loss(y, eta, w)
 
     def derivatives(self, y, eta, w):
@@ -91,7 +91,7 @@ class BinaryLogistic(_SymmetricBinaryLink):
         return loss, g
 
     # The design's gradient pass hands whole row spans to this instead of
-    # calling loss_grad block by block (see _logistic_kernel).
+    # calling loss_grad block by block (see _kernels.logistic).
     gradient_span = staticmethod(gradient_span)
 
     @staticmethod
@@ -134,7 +134,7 @@ class MultinomialLogistic:
         each row's softmax Hessian w_i (diag(p_i) - p_i p_i^T): the matrix
         is symmetric, and the design's Hessian pass needs exactly these
         K(K+1)/2 entries per row, so the full K x K array is never formed.
-        One compiled loop over the rows (``_softmax_kernel``).
+        One compiled loop over the rows (``_kernels.softmax``).
         """
         return softmax_rows(y, eta, w, True)
 

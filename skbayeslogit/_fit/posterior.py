@@ -168,7 +168,7 @@ class GaussianPosterior:
     def binary_moments(self, layout, X, limit=np.inf, chunk=None):
         """q == 1: latent mean and variance of every row, and a range check.
 
-        One compiled pass over X (``_moments_kernel``) gives both moments,
+        One compiled pass over X (``_kernels.moments``) gives both moments,
         mean = m^T x~ and var = ||R x~||^2 with x~ = (x, 1) (intercept) or
         x, and checks every entry read: ``|x| <= limit``, NaN failing. Spans
         of rows run on the worker threads; ``chunk`` finishes each

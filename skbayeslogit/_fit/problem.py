@@ -36,7 +36,7 @@ class NewtonProblem:
     ----------
     design : LinearDesign
     likelihood : object
-        See ``_likelihoods``.
+        See ``likelihoods``.
     y, w : ndarray of shape (n,)
         Encoded targets and non-negative row weights.
     prior_precision : ndarray of shape (p_full,)

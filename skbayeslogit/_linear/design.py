@@ -62,10 +62,6 @@ class DesignBase:
         self.q, self.fit_intercept = self.layout.q, self.layout.fit_intercept
         self.n_coef, self.p_full = self.layout.n_coef, self.layout.p_full
 
-    def parameter_index(self, k, a):
-        """Index in the full vector of (class k, column a); see ``ParameterLayout.index``."""
-        return self.layout.index(k, a)
-
     def split(self, theta):
         """Coefficients (q, d) and intercepts (q,) from a full vector."""
         return self.layout.split(theta)
@@ -139,7 +135,7 @@ class LinearDesign(DesignBase):
     def loss_grad(self, likelihood, y, w, theta):
         """Loss sum, gradient and linear predictor at ``theta``: no Hessian.
 
-        The pass of the solver's metric phase (``_newton``): each block of X
+        The pass of the solver's metric phase (``_fit.newton``): each block of X
         is read once for its predictor and reused from cache for the
         gradient, in tasks over row spans as in the binary Hessian pass.
 
