@@ -312,7 +312,7 @@ class GaussianPosteriorClassifier(PosteriorPredictiveMixin, LinearClassifierBase
             self.posterior_mean_ = result.theta.copy()
             self.posterior_cov_ = self._posterior.cov
             if self._prior_scale is None:
-                check_identification(design, likelihood, y_fit, w, result, self._free_names())
+                check_identification(design, likelihood, y_fit, w, result, self._free_names)
         return self
 
     def _free_names(self):

@@ -71,8 +71,9 @@ def check_identification(design, likelihood, y, w, result, names):
     design : a design; y, w : its labels and weights (None when it holds them)
     likelihood : the fit's likelihood
     result : NewtonResult
-    names : list of str
-        Names of the free parameters, for the collinearity message.
+    names : callable
+        ``names()`` lists the free parameters' names, for the collinearity
+        message (called only when there is one).
     """
     warn_collinear(result, names)
     perfect = design.count_perfect(likelihood, result.theta, y, w, result.eta)
@@ -105,7 +106,10 @@ def _warn_separation(perfect, exists, kind, are, grow=False):
 
 
 def warn_collinear(result, names):
-    """Raise or warn when the Hessian at the estimate is (nearly) singular."""
+    """Raise or warn when the Hessian at the estimate is (nearly) singular.
+
+    ``names()`` lists the free parameters' names (see ``check_identification``).
+    """
     L = result.chol
     H = L @ L.T
     dscale = np.sqrt(np.diag(H))
@@ -115,7 +119,8 @@ def warn_collinear(result, names):
     if result.jitter == 0.0 and ratio > 1e-10:
         return
     v = np.abs(eigvec[:, 0])
-    involved = [names[i] for i in np.argsort(-v) if v[i] > 0.1][:6]
+    labels = names()
+    involved = [labels[i] for i in np.argsort(-v) if v[i] > 0.1][:6]
     msg = (
         "the features are (nearly) linearly dependent without a prior: the "
         f"Hessian's scaled condition number is {1 / max(ratio, 1e-300):.2g}; "
