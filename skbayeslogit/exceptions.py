@@ -1,4 +1,4 @@
-"""Warnings that this package emits."""
+"""Warnings and errors that this package emits."""
 
 
 class SeparationWarning(UserWarning):
@@ -7,3 +7,11 @@ class SeparationWarning(UserWarning):
 
 class CollinearityWarning(UserWarning):
     """Features are nearly linearly dependent; spreads are inflated."""
+
+
+class InvalidParameterError(ValueError, TypeError):
+    """A parameter outside its declared constraints (wrong type or value).
+
+    A subclass of both ValueError and TypeError, so that either ``except``
+    clause catches it, whatever the kind of mistake.
+    """

@@ -3,6 +3,7 @@
 import numpy as np
 
 from ._base import GaussianPosteriorClassifier
+from ._checks.params import Options, ParameterTable
 from ._fit.likelihoods import BinaryLogistic, MultinomialLogistic
 from ._fit.special import expit
 
@@ -87,7 +88,9 @@ class LaplaceLogisticClassifier(GaussianPosteriorClassifier):
     review by someone who knows the domain.
     """
 
-    _predictive_options = ("probit", "mc", "map")
+    _parameter_constraints = GaussianPosteriorClassifier._parameter_constraints | ParameterTable(
+        {"predictive": Options("probit", "mc", "map")}
+    )
 
     def __init__(
         self,

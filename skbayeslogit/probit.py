@@ -3,6 +3,7 @@
 import numpy as np
 
 from ._base import GaussianPosteriorClassifier
+from ._checks.params import Options, ParameterTable
 from ._fit.likelihoods import BinaryProbit
 from ._fit.special import log_ndtr, ndtr
 
@@ -99,8 +100,10 @@ class ProbitClassifier(GaussianPosteriorClassifier):
     review by someone who knows the domain.
     """
 
-    _binary_only = True
-    _predictive_options = ("exact", "mc", "map")
+    binary_only = True
+    _parameter_constraints = GaussianPosteriorClassifier._parameter_constraints | ParameterTable(
+        {"predictive": Options("exact", "mc", "map")}
+    )
 
     def __init__(
         self,

@@ -13,12 +13,20 @@ parametrisations is linear, so a Gaussian posterior stays Gaussian).
 
 import numpy as np
 import pandas as pd
-from scipy.stats import norm
 from sklearn.base import BaseEstimator, ClassifierMixin, clone
 from sklearn.utils.metaestimators import available_if
 from sklearn.utils.validation import check_is_fitted, validate_data
 
-from ._checks.inputs import _reject_non_numeric_frame, check_level, check_positive_int
+from ._checks.inputs import (
+    check_level,
+    check_options,
+    check_positive_int,
+    reject_non_numeric_frame,
+)
+from ._checks.params import HasMethods, ParameterTable
+from ._fit.posterior import summary_table
+from ._linear.columns import column_moments
+from ._linear.layout import ParameterLayout
 
 __all__ = ["StandardizedClassifier"]
 
@@ -31,24 +39,6 @@ def _inner_has(name):
         return hasattr(target, name)
 
     return check
-
-
-def _summary(mean, cov, level, index):
-    """Estimate / sd / bounds / sign-probability table of a Gaussian."""
-    sd = np.sqrt(np.maximum(np.diag(cov), 0.0))
-    z = norm.ppf(0.5 + level / 2.0)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        ratio = np.where(sd > 0, np.abs(mean) / sd, np.inf)
-    return pd.DataFrame(
-        {
-            "estimate": mean,
-            "sd": sd,
-            "lower": mean - z * sd,
-            "upper": mean + z * sd,
-            "sign_prob": norm.cdf(ratio),
-        },
-        index=index,
-    )
 
 
 class StandardizedClassifier(ClassifierMixin, BaseEstimator):
@@ -115,6 +105,8 @@ class StandardizedClassifier(ClassifierMixin, BaseEstimator):
     by someone who knows the domain.
     """
 
+    _parameter_constraints = ParameterTable({"estimator": HasMethods("fit")})
+
     def __init__(self, estimator):
         self.estimator = estimator
 
@@ -135,15 +127,12 @@ class StandardizedClassifier(ClassifierMixin, BaseEstimator):
         -------
         self
         """
-        if not hasattr(self.estimator, "fit"):
-            raise TypeError(
-                f"estimator must be a scikit-learn style classifier; got {self.estimator!r}."
-            )
-        _reject_non_numeric_frame(X)
+        self._parameter_constraints.check(self)
+        reject_non_numeric_frame(X)
         X = validate_data(self, X, dtype=np.float64, ensure_all_finite=True)
         fit_intercept = getattr(self.estimator, "fit_intercept", True)
-        self.center_ = X.mean(axis=0) if fit_intercept else np.zeros(X.shape[1])
-        sd = X.std(axis=0)
+        mean, sd = column_moments(X)
+        self.center_ = mean if fit_intercept else np.zeros(X.shape[1])
         # A constant column keeps scale 1: dividing by zero helps no one, and
         # the wrapped estimator reports the dependence on the intercept.
         self.scale_ = np.where(sd > 0, sd, 1.0)
@@ -171,7 +160,7 @@ class StandardizedClassifier(ClassifierMixin, BaseEstimator):
 
     def _standardize(self, X):
         check_is_fitted(self, "estimator_")
-        _reject_non_numeric_frame(X)
+        reject_non_numeric_frame(X)
         X = validate_data(self, X, reset=False, dtype=np.float64, ensure_all_finite=True)
         return self._as_inner_input(X)
 
@@ -179,17 +168,17 @@ class StandardizedClassifier(ClassifierMixin, BaseEstimator):
         """A with theta_original = A @ theta_standardised (full layout)."""
         inner = self.estimator_
         q, d = np.shape(inner.coef_)
-        fit_intercept = getattr(inner, "fit_intercept", True)
-        n_coef = q * d
-        p = n_coef + (q if fit_intercept else 0)
-        A = np.zeros((p, p))
+        layout = ParameterLayout(q, d, getattr(inner, "fit_intercept", True))
+        A = np.zeros((layout.p_full, layout.p_full))
         inv = 1.0 / self.scale_
+        cols = np.arange(d)
         for k in range(q):
-            rows = slice(k * d, (k + 1) * d)
-            A[rows, rows] = np.diag(inv)
-            if fit_intercept:
-                A[n_coef + k, rows] = -self.center_ * inv
-                A[n_coef + k, n_coef + k] = 1.0
+            slopes = layout.index(k, cols)
+            A[slopes, slopes] = inv
+            if layout.fit_intercept:
+                b = layout.index(k, d)
+                A[b, slopes] = -self.center_ * inv
+                A[b, b] = 1.0
         return A
 
     def _set_original_parameters(self):
@@ -279,14 +268,13 @@ class StandardizedClassifier(ClassifierMixin, BaseEstimator):
             ``attrs["level"]`` and ``attrs["scale"]`` record the choices.
         """
         level = check_level(level)
-        if scale not in ("both", "standardized", "original"):
-            raise ValueError(f"scale must be 'both', 'standardized' or 'original'; got {scale!r}.")
+        check_options("scale", scale, ("both", "standardized", "original"))
         check_is_fitted(self, "estimator_")
         std = self.estimator_.coef_table(level)
         if scale == "standardized":
             out = std.copy()
         else:
-            orig = _summary(self.posterior_mean_, self.posterior_cov_, level, std.index)
+            orig = summary_table(self.posterior_mean_, self.posterior_cov_, level, std.index)
             if scale == "original":
                 out = orig
             else:

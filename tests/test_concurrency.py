@@ -180,7 +180,7 @@ def test_blas_count_survives_threaded_passes_outside_fits():
 
     def passes():
         for _ in range(100):
-            _threads._map_tasks(int, [(i,) for i in range(4)], work=1e9)
+            _threads.map_tasks(int, [(i,) for i in range(4)], work=1e9)
 
     for _ in range(10):
         threads = [threading.Thread(target=passes) for _ in range(4)]

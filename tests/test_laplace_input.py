@@ -173,7 +173,8 @@ def test_nearly_collinear_columns_warn(data):
 def test_column_range_equals_numpy(shape):
     """The wide-view range check gives numpy's column min and max exactly,
     NaN and infinity included, for every block / remainder split."""
-    from skbayeslogit._checks.inputs import _column_range, _overall_range
+    from skbayeslogit._linear.columns import column_range as _column_range
+    from skbayeslogit._linear.columns import overall_range as _overall_range
 
     rng = np.random.default_rng(sum(shape))
     X = rng.standard_normal(shape) * rng.uniform(0.1, 10, shape[1])

@@ -3,73 +3,55 @@
 Every check raises a one-line error that names the problem (the parameter
 and its range, the column, the count of bad cells) instead of letting a NaN
 or a cryptic message through. The estimators' ``_validate_fit_data`` and
-``_validate_predict_data`` (in ``_base.py``) and the accessor call these.
+``_validate_predict_data`` (in ``_base.py``), the data sources' block
+checks and the accessor call these; ``params`` declares the parameters'
+constraints.
 """
-
-import numbers
 
 import numpy as np
 import pandas as pd
 
-from .._linear.threads import _map_tasks
+from .._linear.columns import column_range, overall_range
+from .params import Boolean, Options, PositiveFloat, PositiveInt, Probability, Scale
 
 
-# -- parameter checks ---------------------------------------------------------
+# -- parameter checks, one at a time (the tables of ``params`` check them all) --
 def check_scale(name, value, allow_auto=False):
     """Validate a prior scale: positive finite float, None, or "auto"."""
-    if value is None:
-        return None
-    if isinstance(value, str):
-        if allow_auto and value == "auto":
-            return "auto"
-        options = 'a positive float, None or "auto"' if allow_auto else "a positive float or None"
-        raise ValueError(f"{name} must be {options}; got {value!r}.")
-    if isinstance(value, bool) or not isinstance(value, numbers.Real):
-        raise TypeError(f"{name} must be a positive float; got {type(value).__name__}.")
-    value = float(value)
-    if not (np.isfinite(value) and value > 0):
-        raise ValueError(f"{name} must be a positive finite float; got {value!r}.")
-    return value
+    return Scale(allow_auto).check(name, value)
 
 
 def check_positive_int(name, value):
-    if isinstance(value, bool) or not isinstance(value, numbers.Integral) or value < 1:
-        raise ValueError(f"{name} must be a positive integer; got {value!r}.")
-    return int(value)
+    """Validate an integer >= 1."""
+    return PositiveInt().check(name, value)
 
 
 def check_positive_float(name, value):
-    if isinstance(value, bool) or not isinstance(value, numbers.Real) or not value > 0:
-        raise ValueError(f"{name} must be a positive float; got {value!r}.")
-    return float(value)
+    """Validate a real number > 0."""
+    return PositiveFloat().check(name, value)
 
 
 def check_bool(name, value):
-    # A string such as "no" is truthy: accepting it would silently fit the
-    # opposite of what was meant.
-    if not isinstance(value, bool | np.bool_):
-        raise ValueError(f"{name} must be True or False; got {value!r}.")
-    return bool(value)
+    """Validate True or False."""
+    return Boolean().check(name, value)
 
 
 def check_level(level):
-    if isinstance(level, bool) or not isinstance(level, numbers.Real) or not 0 < level < 1:
-        raise ValueError(f"level must be a probability strictly between 0 and 1; got {level!r}.")
-    return float(level)
+    """Validate a credible level strictly between 0 and 1."""
+    return Probability().check("level", level)
 
 
 def check_options(name, value, options):
-    if value not in options:
-        raise ValueError(f"{name} must be one of {', '.join(map(repr, options))}; got {value!r}.")
-    return value
+    """Validate one of ``options``."""
+    return Options(*options).check(name, value)
 
 
-def _plain(value):
+def plain(value):
     """A numpy scalar as the Python value it holds, for readable messages."""
     return value.item() if isinstance(value, np.generic) else value
 
 
-def _reject_non_numeric_frame(X):
+def reject_non_numeric_frame(X):
     """Name the non-numeric columns of a DataFrame before numpy conversion."""
     if isinstance(X, pd.DataFrame):
         bad = [
@@ -91,10 +73,10 @@ def _reject_non_numeric_frame(X):
 #: sqrt(float64 max) ~ 1.3e154 a single square overflows, and 1e4 below that
 #: leaves room for sums over 1e8 rows. Nonzero columns below the reciprocal
 #: underflow the same products to 0.
-_MAX_ABS_FEATURE = float(np.sqrt(np.finfo(np.float64).max)) / 1e4
+MAX_ABS_FEATURE = float(np.sqrt(np.finfo(np.float64).max)) / 1e4
 
 
-def _reject_unusable_array(X, name="X"):
+def reject_unusable_array(X, name="X"):
     """Name complex numbers and text in X before numpy's conversion does.
 
     scikit-learn's messages for these dump the whole array over many lines
@@ -162,72 +144,7 @@ def _check_finite(X):
     )
 
 
-_RANGE_BLOCK_BYTES = 1 << 20  # rows per block: ~1 MiB, read once for both reductions
-_RANGE_WIDTH = 1024  # values per row of the wide view the reductions run along
-_RANGE_TASK_BLOCKS = 16  # blocks per worker task
-
-
-def _span_range(X, first, last, r, block):
-    """Column minima and maxima of rows [first, last) (see ``_column_range``)."""
-    d = X.shape[1]
-    colmax = np.full(d, -np.inf)
-    colmin = np.full(d, np.inf)
-    for start in range(first, last, block):
-        Xb = X[start : min(start + block, last)]
-        m = len(Xb) // r * r
-        parts = [Xb[:m].reshape(-1, r * d)] if m else []
-        if m < len(Xb):
-            parts.append(Xb[m:])
-        for part in parts:
-            width = part.shape[1]
-            np.maximum(colmax, part.max(axis=0).reshape(width // d, d).max(axis=0), out=colmax)
-            np.minimum(colmin, part.min(axis=0).reshape(width // d, d).min(axis=0), out=colmin)
-    return colmin, colmax
-
-
-def _fold_range(acc, part):
-    return np.minimum(acc[0], part[0]), np.maximum(acc[1], part[1])
-
-
-def _flat_span_range(flat, first, last, block):
-    lo, hi = np.inf, -np.inf
-    for start in range(first, last, block):
-        part = flat[start : min(start + block, last)]
-        # np.minimum, not min(): Python's min would drop a NaN.
-        lo, hi = np.minimum(lo, part.min()), np.maximum(hi, part.max())
-    return lo, hi
-
-
-def _overall_range(X):
-    """Minimum and maximum of all of a C-contiguous X (NaN propagates), in
-    ~1 MiB blocks: the minimum rereads each block from cache. One thread:
-    the scan is bound by memory bandwidth (worker threads measured no
-    faster at n = 1e6, d = 20)."""
-    flat = X.reshape(-1)
-    return _flat_span_range(flat, 0, flat.size, _RANGE_BLOCK_BYTES // 8)
-
-
-def _column_range(X):
-    """Column minima and maxima of a C-contiguous 2-D array; NaN propagates.
-
-    numpy reduces a C-ordered (n, d) array along axis 0 one short row at a
-    time, which costs ~100 ns a row at d = 50. Viewing r consecutive rows as
-    one row of r d values (no copy) makes the inner loop long and
-    vectorised, and reducing the r partial rows at the end gives the same
-    values exactly (max and min are order-free). Blocks of about 1 MiB let
-    the minimum reread each block from cache; spans of blocks run on the
-    worker threads of ``_threads`` (numpy releases the GIL in reductions).
-    """
-    n, d = X.shape
-    r = max(1, _RANGE_WIDTH // max(d, 1))
-    block = max(r, (_RANGE_BLOCK_BYTES // (8 * max(d, 1))) // r * r)
-    span = block * _RANGE_TASK_BLOCKS
-    tasks = [(X, a, min(a + span, n), r, block) for a in range(0, n, span)]
-    # Reductions only: no BLAS call, so BLAS's thread count is left alone.
-    return _map_tasks(_span_range, tasks, fold=_fold_range, work=2.0 * X.size, blas=False)
-
-
-def _check_magnitude(X, per_column=True):
+def check_magnitude(X, per_column=True):
     """Reject NaN/inf and features whose squares overflow or underflow float64.
 
     Max and min reductions read X without any temporary of its size; NaN
@@ -240,7 +157,7 @@ def _check_magnitude(X, per_column=True):
     if X.size == 0:
         return
     if X.flags.c_contiguous:
-        colmin, colmax = _column_range(X) if per_column else _overall_range(X)
+        colmin, colmax = column_range(X) if per_column else overall_range(X)
     else:
         axis = 0 if per_column else None
         colmax, colmin = np.max(X, axis=axis), np.min(X, axis=axis)
@@ -248,25 +165,30 @@ def _check_magnitude(X, per_column=True):
         _check_finite(X)
     colmax = np.maximum(np.abs(colmax), np.abs(colmin))
     if not per_column:
-        if colmax <= _MAX_ABS_FEATURE:
+        if colmax <= MAX_ABS_FEATURE:
             return
         colmax = np.max(np.abs(X), axis=0)
-    big = colmax > _MAX_ABS_FEATURE
-    if per_column:
-        tiny = (colmax > 0) & (colmax < 1.0 / _MAX_ABS_FEATURE)
-    else:
-        tiny = np.zeros_like(big)
+    check_column_magnitudes(colmax, per_column)
+
+
+def check_column_magnitudes(colmax, per_column=True):
+    """Reject columns whose largest |x| (``colmax``) overflows or underflows float64 squares.
+
+    ``per_column=False`` checks only the overflow (prediction).
+    """
+    big = colmax > MAX_ABS_FEATURE
+    tiny = (colmax > 0) & (colmax < 1.0 / MAX_ABS_FEATURE) if per_column else np.zeros_like(big)
     if np.any(big) or np.any(tiny):
         j = int(np.flatnonzero(big | tiny)[0])
         raise ValueError(
             f"feature column {j} has values of magnitude {colmax[j]:.3g}, outside "
-            f"[{1 / _MAX_ABS_FEATURE:.0e}, {_MAX_ABS_FEATURE:.0e}]: products of such "
+            f"[{1 / MAX_ABS_FEATURE:.0e}, {MAX_ABS_FEATURE:.0e}]: products of such "
             "features overflow or underflow float64. Rescale the features (for example "
             "with sklearn.preprocessing.StandardScaler)."
         )
 
 
-def _as_labels(y):
+def as_labels(y):
     """y as an array whose values keep their type, or a clear error.
 
     pandas nullable columns (boolean, Int64, Float64) would otherwise be
@@ -320,8 +242,8 @@ def encode_labels(y):
 
     Integer and boolean labels whose range is small (at most
     ``_DENSE_CODE_RANGE`` and 2 n) are counted instead of sorted: one
-    ``bincount`` and one table lookup, O(n) rather than O(n log n) (about
-    20 ms saved per million rows). Other labels go to ``np.unique``.
+    ``bincount`` and one table lookup, O(n) rather than O(n log n). Other
+    labels go to ``np.unique``.
 
     Parameters
     ----------

@@ -43,10 +43,12 @@ import warnings
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.linalg import LinAlgError, lapack
 from sklearn.exceptions import ConvergenceWarning
 
-from .._linear.design import LinearDesign
+from .lapack import chol_solve, factor, robust_cholesky
+from .problem import NewtonProblem
+
+__all__ = ["NewtonProblem", "NewtonResult", "newton_solve", "solve_map"]
 
 _METRIC_MIN_ROWS = 2_500  # subsample rows at least ...
 _METRIC_ROWS_PER_PARAM = 20  # ... and this many per parameter (Hessian error ~ sqrt(p / m))
@@ -66,10 +68,9 @@ def _metric_rows(n, p):
     if n < _METRIC_MIN_RATIO * m:
         return None
     # A larger subsample starts closer and contracts faster (error ~
-    # sqrt(p / m)); at 2% of the rows its Newton passes cost ~10% of one
-    # full Hessian pass, and each metric step saved is a full read of X.
-    # Wide models gain most: at d = 50 (n = 1e5) 100 rows per parameter
-    # took 6 metric steps where 2,500 rows took 8, for 5% of the rows.
+    # sqrt(p / m)); its Newton passes cost a small share of one full
+    # Hessian pass, and each metric step saved is a full read of X. Wide
+    # models gain most (figures in benchmarks/README.md).
     good = min(_METRIC_GOOD_PER_PARAM * p, n // _METRIC_GOOD_SHARE)
     return max(m, min(n // _METRIC_SHARE, _METRIC_MAX_ROWS), good)
 
@@ -112,9 +113,9 @@ class NewtonResult:
     jitter: float
 
 
-# Relative size of the rounding error of E (a sum of n terms; ~1 ulp was
-# measured at n = 250,000) below which its difference between two points
-# says nothing, and the slopes decide (``_sufficient_decrease``).
+# Relative size of the rounding error of E (a sum of n terms, measured at
+# about 1 ulp) below which its difference between two points says nothing,
+# and the slopes decide (``_sufficient_decrease``).
 _E_ROUNDING = 1e3 * np.finfo(np.float64).eps
 
 
@@ -146,170 +147,6 @@ def _sufficient_decrease(E, E_try, g_try, delta, decrement, armijo):
     if abs(E_try - E) > _E_ROUNDING * abs(E):
         return E_try <= E - armijo * decrement
     return slope_try <= (1.0 - 2.0 * armijo) * decrement
-
-
-def _free_map_blocks(T):
-    """T as unit columns, then a dense block: ``(lead, tail, B)``, or None.
-
-    The free maps of ``_base.free_parameter_map`` select parameters (the
-    columns of T are unit vectors at rows ``lead``) and, for zero-sum
-    intercepts, add a small basis ``B`` on the remaining rows ``tail``. Then
-    T^T H T has the blocks H[lead, lead], H[lead, tail] B and
-    B^T H[tail, tail] B, the first copied exactly.
-    """
-    n_unit = 0
-    for column in T.T:
-        nonzero = np.flatnonzero(column)
-        if nonzero.size != 1 or column[nonzero[0]] != 1.0:
-            break
-        n_unit += 1
-    lead = np.argmax(T[:, :n_unit], axis=0) if n_unit else np.zeros(0, dtype=np.intp)
-    tail = np.setdiff1d(np.arange(T.shape[0]), lead)
-    B = T[tail, n_unit:]
-    rebuilt = np.zeros_like(T)
-    rebuilt[lead, np.arange(n_unit)] = 1.0
-    rebuilt[tail, n_unit:] = B
-    return (lead, tail, B) if np.array_equal(rebuilt, T) else None
-
-
-# LAPACK's potrf / potrs called directly: scipy's cholesky and cho_solve
-# wrappers cost ~20-40 us a call in argument handling, as much as a whole
-# data pass at n = 1,000, and a fit makes one factor and one or two solves
-# per iteration.
-def _factor(H):
-    """Lower Cholesky factor of H (upper triangle zero), or None if H is not
-    numerically positive definite."""
-    L, info = lapack.dpotrf(H, lower=1, clean=1)
-    if info < 0:  # pragma: no cover - an argument error would be ours
-        raise ValueError(f"dpotrf: illegal argument {-info}")
-    # OpenBLAS's potrf tests a pivot with ``<= 0`` only, so a NaN passes
-    # it; a NaN or inf anywhere in the lower triangle reaches the diagonal.
-    if info != 0 or not np.all(np.isfinite(np.diagonal(L))):
-        return None
-    return L
-
-
-def _chol_solve(L, b):
-    """Solve (L L^T) x = b for the lower factor ``L`` of ``_factor``."""
-    x, info = lapack.dpotrs(L, b, lower=1)
-    if info != 0:  # pragma: no cover - an argument error would be ours
-        raise ValueError(f"dpotrs: illegal argument {-info}")
-    return x
-
-
-def _robust_cholesky(H):
-    """Lower Cholesky factor of H, adding the smallest diagonal jitter needed."""
-    H = np.asarray(H, dtype=np.float64)
-    if not np.all(np.isfinite(H)):
-        raise LinAlgError("the Hessian contains NaN or infinity")
-    L = _factor(H)
-    if L is not None:
-        return L, 0.0
-    scale = max(float(np.mean(np.abs(np.diag(H)))), 1e-300)
-    jitter = 1e-12 * scale
-    while jitter < 1e6 * scale:
-        L = _factor(H + jitter * np.eye(len(H)))
-        if L is not None:
-            return L, jitter
-        jitter *= 10.0
-    raise LinAlgError("the Hessian is not positive definite even after regularisation")
-
-
-class NewtonProblem:
-    """One MAP problem: data, likelihood, prior and free-parameter map.
-
-    Parameters
-    ----------
-    design : LinearDesign
-    likelihood : object
-        See ``_likelihoods``.
-    y, w : ndarray of shape (n,)
-        Encoded targets and non-negative row weights.
-    prior_precision : ndarray of shape (p_full,)
-        Diagonal of D.
-    free_map : ndarray of shape (p_full, p_free) or None
-        T; None means the identity.
-    """
-
-    def __init__(self, design, likelihood, y, w, prior_precision, free_map=None):
-        self.design = design
-        self.likelihood = likelihood
-        self.y = y
-        self.w = w
-        self.prior_precision = np.asarray(prior_precision, dtype=np.float64)
-        self.free_map = free_map
-        self.p_free = design.p_full if free_map is None else free_map.shape[1]
-        self._free_blocks = None if free_map is None else _free_map_blocks(free_map)
-
-    def to_full(self, phi):
-        return phi if self.free_map is None else self.free_map @ phi
-
-    def to_free_grad(self, g):
-        return g if self.free_map is None else self.free_map.T @ g
-
-    def to_free_hess(self, H):
-        if self.free_map is None:
-            return H
-        if self._free_blocks is None:
-            T = self.free_map
-            return T.T @ H @ T
-        # T^T H T by blocks: two dense p^3 products took 15 ms a pass at
-        # p = 510, these gathers well under one.
-        lead, tail, B = self._free_blocks
-        H_lead = H[np.ix_(lead, lead)]
-        if B.shape[1] == 0:
-            return H_lead
-        H_cross = H[np.ix_(lead, tail)] @ B
-        H_tail = B.T @ H[np.ix_(tail, tail)] @ B
-        return np.block([[H_lead, H_cross], [H_cross.T, H_tail]])
-
-    def penalty(self, theta):
-        return 0.5 * float(theta @ (self.prior_precision * theta))
-
-    def derivatives(self, phi, eta=None):
-        """E, its gradient and Hessian in free coordinates, the NLL part, eta.
-
-        ``eta`` (the linear predictor at ``phi``) is computed inside the
-        data pass when not given.
-        """
-        theta = self.to_full(phi)
-        loss, g, H, eta = self.design.loss_grad_hess(self.likelihood, self.y, self.w, theta, eta)
-        g = g + self.prior_precision * theta
-        H[np.diag_indices_from(H)] += self.prior_precision
-        E = loss + self.penalty(theta)
-        return E, self.to_free_grad(g), self.to_free_hess(H), loss, eta
-
-    def value_grad(self, phi):
-        """E, its gradient in free coordinates, the NLL part and eta: no Hessian."""
-        theta = self.to_full(phi)
-        loss, g, eta = self.design.loss_grad(self.likelihood, self.y, self.w, theta)
-        g = g + self.prior_precision * theta
-        return loss + self.penalty(theta), self.to_free_grad(g), loss, eta
-
-    def subsample(self, n_rows, seed=0):
-        """The same problem on ``n_rows`` random rows, weights rescaled.
-
-        The weights are scaled so that they sum to the full total, which
-        keeps the balance between likelihood and prior as in the full data.
-        """
-        rng = np.random.default_rng(seed)
-        idx = np.sort(rng.choice(self.design.n, size=n_rows, replace=False))
-        if getattr(self.design, "out_of_core", False):
-            # The same rows as in memory, gathered from the source once.
-            X_sub, y_sub, w_sub = self.design.take(idx)
-            full_total = self.design.total_weight
-        else:
-            X_sub = np.ascontiguousarray(self.design.X[idx])
-            y_sub, w_sub = self.y[idx], self.w[idx]
-            full_total = self.w.sum()
-        total = w_sub.sum()
-        if total <= 0:
-            return None
-        w_sub = w_sub * (full_total / total)
-        design = LinearDesign(X_sub, self.design.q, self.design.fit_intercept)
-        return NewtonProblem(
-            design, self.likelihood, y_sub, w_sub, self.prior_precision, self.free_map
-        )
 
 
 def newton_solve(
@@ -351,80 +188,113 @@ def newton_solve(
     -------
     NewtonResult
     """
-    lik = problem.likelihood
     phi = np.array(phi0, dtype=np.float64)
-    if start is None:
-        start = problem.derivatives(phi, eta0)
-    E, g, H, loss, eta = start
+    state = _NewtonState(phi, *(problem.derivatives(phi, eta0) if start is None else start))
     converged = False
     n_iter = 0
     for n_iter in range(1, max_iter + 1):  # noqa: B007 - n_iter is reported
-        L, jitter = _robust_cholesky(H)
-        delta = -_chol_solve(L, g)
-        decrement = -float(np.dot(g, delta))
-        if decrement / 2.0 <= tol and not final_step:
-            converged = True
-            n_iter -= 1  # no step was taken
-            break
+        state.factorise()
+        delta = -chol_solve(state.L, state.g)
+        decrement = -float(np.dot(state.g, delta))
         if decrement / 2.0 <= tol:
-            # Quadratically convergent: the full step lands within about
-            # decrement^2 of the optimum. One more complete pass there gives
-            # the posterior precision at the returned point itself (the
-            # Hessian of this iterate would put the standard errors off by
-            # O(sqrt(tol)) relative); it costs little more than the pass
-            # for eta alone, since X is read once either way.
-            phi = phi + delta
-            E, g, H, loss, eta = problem.derivatives(phi)
-            L, jitter = _robust_cholesky(H)
             converged = True
+            if final_step:
+                # Quadratically convergent: the full step lands within about
+                # decrement^2 of the optimum. One more complete pass there
+                # gives the posterior precision at the returned point itself
+                # (the Hessian of this iterate would put the standard errors
+                # off by O(sqrt(tol)) relative); it costs little more than the
+                # pass for eta alone, since X is read once either way.
+                state.move(state.phi + delta, problem.derivatives(state.phi + delta))
+                state.factorise()
+            else:
+                n_iter -= 1  # no step was taken
             break
-        slope = -decrement
         # The full step is tried with the complete pass (it also computes
         # the new linear predictor): it is accepted in almost every
         # iteration, and then that pass is the next iteration's.
-        phi_try = phi + delta
-        E_try, g_try, H_try, loss_try, eta_try = problem.derivatives(phi_try)
-        if _sufficient_decrease(E, E_try, g_try, delta, decrement, armijo):
-            phi, eta, E, g, H, loss = phi_try, eta_try, E_try, g_try, H_try, loss_try
+        phi_try = state.phi + delta
+        trial = problem.derivatives(phi_try)
+        if _sufficient_decrease(state.E, trial[0], trial[1], delta, decrement, armijo):
+            state.move(phi_try, trial)
             continue
-        # Backtrack along eta + alpha d_eta (eta is linear in the
-        # parameters) with loss-only passes that do not touch X. Out-of-core
-        # designs keep no eta (it is as long as the data): their loss-only
-        # passes recompute it block by block.
-        in_memory = eta is not None
-        d_eta = eta_try - eta if in_memory else None
-        alpha = 0.5
-        while alpha >= 1e-12:
-            phi_try = phi + alpha * delta
-            if in_memory:
-                eta_try = eta + alpha * d_eta
-                loss_try = lik.loss(problem.y, eta_try, problem.w)
-            else:
-                loss_try = problem.design.loss(lik, problem.to_full(phi_try))
-            E_try = loss_try + problem.penalty(problem.to_full(phi_try))
-            if np.isfinite(E_try) and E_try <= E + armijo * alpha * slope:
-                break
-            alpha *= 0.5
-        if alpha < 1e-12:
+        step = _backtrack(problem, state, delta, trial[4], decrement, armijo)
+        if step is None:
             # No decrease is possible at float precision: the objective is as
             # flat as rounding allows around phi; stop here.
-            converged = decrement < 1e-6 * max(1.0, abs(E))
+            converged = decrement < 1e-6 * max(1.0, abs(state.E))
             break
-        phi, eta = phi_try, eta_try
-        E, g, H, loss, eta = problem.derivatives(phi, eta)
+        phi_try, eta_try = step
+        state.move(phi_try, problem.derivatives(phi_try, eta_try))
     else:
-        L, jitter = _robust_cholesky(H)
-    return NewtonResult(
-        phi=phi,
-        theta=problem.to_full(phi),
-        chol=L,
-        objective=float(E),
-        loss=float(loss),
-        eta=eta,
-        n_iter=n_iter,
-        converged=converged,
-        jitter=jitter,
-    )
+        state.factorise()
+    return state.result(problem, n_iter, converged)
+
+
+class _NewtonState:
+    """The current iterate of ``newton_solve``: phi, E, g, H, the NLL, eta, factor."""
+
+    def __init__(self, phi, E, g, H, loss, eta):
+        self.phi, self.E, self.g, self.H, self.loss, self.eta = phi, E, g, H, loss, eta
+        self.L, self.jitter = None, 0.0
+
+    def move(self, phi, derivatives):
+        self.phi = phi
+        self.E, self.g, self.H, self.loss, self.eta = derivatives
+
+    def factorise(self):
+        self.L, self.jitter = robust_cholesky(self.H)
+
+    def result(self, problem, n_iter, converged):
+        return NewtonResult(
+            phi=self.phi,
+            theta=problem.to_full(self.phi),
+            chol=self.L,
+            objective=float(self.E),
+            loss=float(self.loss),
+            eta=self.eta,
+            n_iter=n_iter,
+            converged=converged,
+            jitter=self.jitter,
+        )
+
+
+def _backtrack(problem, state, delta, eta_full, decrement, armijo):
+    """Armijo backtracking from ``state`` along ``delta``: (phi, eta) or None.
+
+    The loss along the step is the design's ``loss`` at eta + alpha d_eta
+    (eta is linear in the parameters), which does not touch X; a design
+    that keeps no eta (it would be as long as the data) returns None for it
+    and recomputes the loss in a pass.
+    """
+    d_eta = None if state.eta is None else eta_full - state.eta
+    alpha = 0.5
+    while alpha >= 1e-12:
+        phi_try = state.phi + alpha * delta
+        theta_try = problem.to_full(phi_try)
+        eta_try = None if d_eta is None else state.eta + alpha * d_eta
+        loss_try = problem.design.loss(
+            problem.likelihood, theta_try, problem.y, problem.w, eta_try
+        )
+        E_try = loss_try + problem.penalty(theta_try)
+        if np.isfinite(E_try) and E_try <= state.E - armijo * alpha * decrement:
+            return phi_try, eta_try
+        alpha *= 0.5
+    return None
+
+
+def _metric_direction(g, pairs, chol):
+    """-B^{-1} g: the L-BFGS two-loop recursion with M^{-1} = (chol chol^T)^{-1} inside."""
+    q = g.copy()
+    alphas = []
+    for s_i, y_i, rho_i in reversed(pairs):
+        a = rho_i * float(np.dot(s_i, q))
+        q -= a * y_i
+        alphas.append(a)
+    r = chol_solve(chol, q)
+    for (s_i, y_i, rho_i), a in zip(pairs, reversed(alphas), strict=True):
+        r += (a - rho_i * float(np.dot(y_i, r))) * s_i
+    return -r
 
 
 def _metric_phase(problem, phi, chol, *, max_iter, tol, armijo=1e-4):
@@ -473,16 +343,7 @@ def _metric_phase(problem, phi, chol, *, max_iter, tol, armijo=1e-4):
     previous = np.inf
     n_iter = 0
     while n_iter < max_iter:
-        q = g.copy()
-        alphas = []
-        for s_i, y_i, rho_i in reversed(pairs):
-            a = rho_i * float(np.dot(s_i, q))
-            q -= a * y_i
-            alphas.append(a)
-        r = _chol_solve(chol, q)
-        for (s_i, y_i, rho_i), a in zip(pairs, reversed(alphas), strict=True):
-            r += (a - rho_i * float(np.dot(y_i, r))) * s_i
-        delta = -r
+        delta = _metric_direction(g, pairs, chol)
         decrement = -float(np.dot(g, delta))
         if not np.isfinite(decrement) or decrement <= 0.0 or decrement / 2.0 <= tol:
             break
@@ -513,6 +374,34 @@ def _metric_phase(problem, phi, chol, *, max_iter, tol, armijo=1e-4):
     return phi, eta, n_iter, last
 
 
+def _subsample_start(problem, phi0, max_iter):
+    """(phi0, metric): the subsample's start and Hessian factor, or (phi0, None)."""
+    m = _metric_rows(problem.design.n, problem.p_free)
+    sub = problem.subsample(m) if m is not None else None
+    if sub is None:
+        return phi0, None
+    if phi0 is not None:
+        # A given start (the prior-scale search): the metric there.
+        _, _, H, _, _ = sub.derivatives(np.asarray(phi0, dtype=np.float64))
+        return phi0, (factor(H) if np.all(np.isfinite(H)) else None)
+    # The subsample's MAP is off the full one by its sampling error: E at it
+    # exceeds the full minimum by about p (n / m - 1) / 2 on average (the
+    # error has covariance (n / m - 1) H^{-1}). Solving the subsample more
+    # finely than 1/10 of that buys nothing: the metric steps that follow are
+    # as many, and its last Newton pass is saved.
+    gap = 0.5 * problem.p_free * (problem.design.n / m - 1.0)
+    warm = newton_solve(
+        sub,
+        np.zeros(problem.p_free),
+        max_iter=max_iter,
+        tol=max(1e-4, 1e-1 * gap),
+        final_step=False,
+    )
+    if warm.converged and warm.jitter == 0.0 and np.all(np.isfinite(warm.phi)):
+        return warm.phi, warm.chol
+    return None, None
+
+
 def solve_map(problem, phi0=None, *, max_iter=100, tol=1e-8, warn=True):
     """MAP estimate; on large data, a subsample start and metric (module docstring).
 
@@ -529,32 +418,7 @@ def solve_map(problem, phi0=None, *, max_iter=100, tol=1e-8, warn=True):
     -------
     NewtonResult
     """
-    metric = None
-    m = _metric_rows(problem.design.n, problem.p_free)
-    sub = problem.subsample(m) if m is not None else None
-    if sub is not None:
-        if phi0 is None:
-            # The subsample's MAP is off the full one by its sampling error:
-            # E at it exceeds the full minimum by about p (n / m - 1) / 2 on
-            # average (the error has covariance (n / m - 1) H^{-1}). Solving
-            # the subsample more finely than 1/10 of that buys nothing: the
-            # metric steps that follow are as many (measured: binary d = 50,
-            # K = 10 at d = 10 and 50), and its last Newton pass is saved
-            # (at K = 10, d = 50, a tenth of a full Hessian pass).
-            gap = 0.5 * problem.p_free * (problem.design.n / m - 1.0)
-            warm = newton_solve(
-                sub,
-                np.zeros(problem.p_free),
-                max_iter=max_iter,
-                tol=max(1e-4, 1e-1 * gap),
-                final_step=False,
-            )
-            if warm.converged and warm.jitter == 0.0 and np.all(np.isfinite(warm.phi)):
-                phi0, metric = warm.phi, warm.chol
-        else:
-            # A given start (the prior-scale search): the metric there.
-            _, _, H, _, _ = sub.derivatives(np.asarray(phi0, dtype=np.float64))
-            metric = _factor(H) if np.all(np.isfinite(H)) else None
+    phi0, metric = _subsample_start(problem, phi0, max_iter)
     if phi0 is None:
         phi0 = np.zeros(problem.p_free)
     if metric is None:

@@ -14,9 +14,12 @@ Pattern Recognition and Machine Learning (2006), Sec. 4.4-4.5.
 """
 
 import numpy as np
+import pandas as pd
 from scipy.linalg import solve_triangular
+from scipy.stats import norm
 
-from .._linear.threads import _map_tasks, task_span
+from .._linear.layout import as_layout
+from .._linear.threads import map_tasks, row_spans
 
 # Multiclass moments: rows per piece (its outer products, 66 x 2048 doubles
 # at d = 10, and the K x K covariances stay in L2).
@@ -64,13 +67,14 @@ class GaussianPosterior:
         z = rng.standard_normal((n_draws, self.R.shape[0]))
         return self.mean + z @ self.R
 
-    def latent_moments(self, design, X, chunk=None):
+    def latent_moments(self, layout, X, chunk=None):
         """Mean and (co)variance of eta = x^T W^T + b for each row of X.
 
         Parameters
         ----------
-        design : LinearDesign
-            Supplies the parameter layout (q, d, intercept).
+        layout : ParameterLayout
+            The parameter layout (q, d, intercept); a design stands for the
+            layout it carries.
         X : ndarray of shape (n, d)
         chunk : callable, optional
             Binary only: ``chunk(mean_c, var_c, start, stop)`` is called on
@@ -83,10 +87,11 @@ class GaussianPosterior:
         var : ndarray of shape (n,) if q == 1 else (n, q, q)
             Variance (binary) or covariance matrix (multiclass) per row.
         """
-        if design.q == 1:
-            mean, var, _ = self.binary_moments(design, X, chunk=chunk)
+        layout = as_layout(layout)
+        if layout.q == 1:
+            mean, var, _ = self.binary_moments(layout, X, chunk=chunk)
             return mean, var
-        n, q = X.shape[0], design.q
+        n, q = X.shape[0], layout.q
         mean = np.empty((n, q))
         var = np.empty((n, q, q))
 
@@ -97,22 +102,21 @@ class GaussianPosterior:
             var[start:stop, ku, lu] = pairs_c
             var[start:stop, lu, ku] = pairs_c
 
-        self.multiclass_moments(design, X, keep)
+        self.multiclass_moments(layout, X, keep)
         return mean, var
 
-    def multiclass_moments(self, design, X, chunk):
+    def multiclass_moments(self, layout, X, chunk):
         """q > 1: latent means and covariances, piece by piece.
 
         Cov(eta_k, eta_l) at x~ is x~^T S_kl x~ with S_kl the (k, l) block
         of the covariance; summed over a <= b it is one product of the row's
         packed outer products x~_a x~_b (``pack_outer``) with a fixed
-        (n_outer, K(K+1)/2) matrix, so a piece of rows takes one GEMM. The
-        former loop (K products of X with R's blocks, then K(K+1)/2 row-wise
-        sums) took 0.7 s for n = 1e5, K = 10, d = 10.
+        (n_outer, K(K+1)/2) matrix, so a piece of rows takes one GEMM instead
+        of K products of X with R's blocks and K(K+1)/2 row-wise sums.
 
         Parameters
         ----------
-        design : LinearDesign
+        layout : ParameterLayout
         X : ndarray of shape (n, d), float64, C order
         chunk : callable
             ``chunk(mean_c, pairs_c, start, stop)`` with ``mean_c`` (m, K)
@@ -122,13 +126,13 @@ class GaussianPosterior:
         """
         from .._kernels.softmax import pack_outer
 
-        d = design.d
-        dx = d + 1 if design.fit_intercept else d
-        weights = self._pair_weights(design)
-        W, b = design.split(self.mean)
+        layout = as_layout(layout)
+        d = layout.d
+        dx = d + 1 if layout.fit_intercept else d
+        weights = self._pair_weights(layout)
+        W, b = layout.split(self.mean)
         n = X.shape[0]
         rows = min(_MULTI_ROWS, max(n, 1))
-        span = task_span(n, rows)
 
         def task(first, last):
             x_t = np.ones((dx, rows))  # the intercept row stays 1
@@ -142,19 +146,18 @@ class GaussianPosterior:
                 pairs = np.dot(outer_t[:, :m].T, weights)
                 chunk(np.dot(Xc, W.T) + b, pairs, start, stop)
 
-        tasks = [(a, min(a + span, n)) for a in range(0, n, span)]
-        _map_tasks(task, tasks, work=float(n) * weights.size)
+        map_tasks(task, row_spans(n, rows), work=float(n) * weights.size)
 
-    def _pair_weights(self, design):
+    def _pair_weights(self, layout):
         """(n_outer, K(K+1)/2): entry ((a, b), (k, l)) weighs x~_a x~_b in Cov(eta_k, eta_l)."""
         cached = getattr(self, "_pair_weight_cache", None)
         if cached is not None:
             return cached
-        dx = design.d + 1 if design.fit_intercept else design.d
+        dx = layout.d + 1 if layout.fit_intercept else layout.d
         S = self.cov
-        ku, lu = np.triu_indices(design.q)
+        ku, lu = np.triu_indices(layout.q)
         au, bu = np.triu_indices(dx)
-        param = design.parameter_index
+        param = layout.index
         ka, lb = param(ku[None, :], au[:, None]), param(lu[None, :], bu[:, None])
         kb, la = param(ku[None, :], bu[:, None]), param(lu[None, :], au[:, None])
         # a < b: both orders of the pair (S_kl is not symmetric for k != l).
@@ -162,19 +165,19 @@ class GaussianPosterior:
         self._pair_weight_cache = weights
         return weights
 
-    def binary_moments(self, design, X, limit=np.inf, chunk=None):
+    def binary_moments(self, layout, X, limit=np.inf, chunk=None):
         """q == 1: latent mean and variance of every row, and a range check.
 
-        One compiled pass over X (``_moments_kernel``) gives both moments,
+        One compiled pass over X (``_kernels.moments``) gives both moments,
         mean = m^T x~ and var = ||R x~||^2 with x~ = (x, 1) (intercept) or
         x, and checks every entry read: ``|x| <= limit``, NaN failing. Spans
-        of rows run on the design's worker threads; ``chunk`` finishes each
+        of rows run on the worker threads; ``chunk`` finishes each
         piece of ``_FINISH_ROWS`` rows there, while its moments are in cache.
         Pieces with a failed check are not passed to ``chunk``.
 
         Parameters
         ----------
-        design : LinearDesign
+        layout : ParameterLayout
         X : ndarray of shape (n, d), float64, C order
         limit : float, default=inf
             Largest magnitude allowed in X.
@@ -194,13 +197,12 @@ class GaussianPosterior:
         plan = getattr(self, "_moment_plan", None)
         if plan is None:
             # Fixed by the posterior: built on the first prediction.
-            plan = self._moment_plan = BinaryMomentPlan(self.R, self.mean, design.d)
+            plan = self._moment_plan = BinaryMomentPlan(self.R, self.mean, as_layout(layout).d)
         X = np.ascontiguousarray(X, dtype=np.float64)
         n = X.shape[0]
         mean = np.empty(n)
         var = np.empty(n)
         rows = min(_FINISH_ROWS, max(n, 1))
-        span = task_span(n, rows)
 
         def task(first, last):
             ok = True
@@ -212,6 +214,37 @@ class GaussianPosterior:
                     chunk(mean[start:stop], var[start:stop], start, stop)
             return ok
 
-        tasks = [(a, min(a + span, n)) for a in range(0, n, span)]
-        in_range = all(_map_tasks(task, tasks, work=float(n) * plan.work, blas=False))
+        in_range = all(map_tasks(task, row_spans(n, rows), work=float(n) * plan.work, blas=False))
         return mean, var, in_range
+
+
+def summary_table(mean, cov, level, index):
+    """Estimate / sd / equal-tailed bounds / sign-probability table of a Gaussian.
+
+    Parameters
+    ----------
+    mean : ndarray of shape (p,)
+    cov : ndarray of shape (p, p)
+    level : float in (0, 1)
+    index : pandas Index of length p
+
+    Returns
+    -------
+    pandas.DataFrame
+        Columns ``estimate``, ``sd``, ``lower``, ``upper`` and ``sign_prob``
+        (Phi(|m| / sd), the posterior probability of the estimate's sign).
+    """
+    sd = np.sqrt(np.maximum(np.diag(cov), 0.0))
+    z = norm.ppf(0.5 + level / 2.0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ratio = np.where(sd > 0, np.abs(mean) / sd, np.inf)
+    return pd.DataFrame(
+        {
+            "estimate": mean,
+            "sd": sd,
+            "lower": mean - z * sd,
+            "upper": mean + z * sd,
+            "sign_prob": norm.cdf(ratio),
+        },
+        index=index,
+    )

@@ -91,3 +91,10 @@ def probit_hessian_factor(z, lam=None):
         coefs = (1.0, -1.0, 6.0, -50.0, 518.0, -6354.0, 89782.0, -1435330.0, 25625910.0)
         out[tail] = np.polynomial.polynomial.polyval(u, coefs)
     return out
+
+
+def log_normalise(logp):
+    """logp - logsumexp(logp) along the rows of an (n, K) array (shifted by the row maximum)."""
+    top = logp.max(axis=-1, keepdims=True)
+    lse = np.log(np.exp(logp - top).sum(axis=-1)) + top[..., 0]
+    return logp - lse[:, None]

@@ -162,10 +162,8 @@ def gradient_span(X, coef, b0, y, w, eta):
     does the whole span in 128 KiB chunks (exp and log1p row by row),
     holding no GIL between chunks. In the calling thread the design's
     per-block numpy path is used instead; its SIMD exp and log1p make it the
-    faster one there. Measured as whole fits at n = 1e5 (medians of 20
-    interleaved fits): at d = 20, run serially, numpy's blocks took 29 ms
-    against 38 ms for this loop; at d = 50, on two workers, this loop took
-    59 ms against 70 ms.
+    faster one there, and this loop the faster one on two workers (figures
+    in benchmarks/README.md).
 
     Parameters
     ----------

@@ -5,7 +5,7 @@ predictor eta = theta^T x~ under the Gaussian posterior N(m, R^T R) has
 
     mean = m^T x~,    var = ||R x~||^2,
 
-with R = L^{-1} lower triangular (``_posterior``). The kernel computes both
+with R = L^{-1} lower triangular (``_fit.posterior``). The kernel computes both
 for a span of rows in one read of X, and checks the values it reads against
 the prediction's magnitude limit on the way, so that ``predict_proba`` reads
 X once instead of twice (once for the range check, once for the product).
@@ -17,13 +17,9 @@ whatever the block or thread. Term k of R x~ only has the leading columns
 where R is nonzero (R is triangular), so the loop stops there: 250 of 440
 products a row at d = 20 with an intercept, the mean's included.
 
-It replaced a range scan plus one multi-threaded BLAS product of X with
-[R^T, m] per chunk (too skinny a product for BLAS's blocking). Medians of 15
-interleaved calls on two cores, range check included:
-
-    n = 1e6, d = 20:   78 -> 36 ms
-    n = 1e6, d = 50:  203 -> 115 ms
-    n = 1e5, d = 10:  5.6 -> 3.8 ms
+It is faster than a range scan plus one multi-threaded BLAS product of X
+with [R^T, m] per chunk, too skinny a product for BLAS's blocking (figures
+in benchmarks/README.md).
 
 Tried without gain: two terms per sweep sharing the loads of the block.
 """
@@ -35,7 +31,7 @@ from .config import lazy_kernel
 _BLOCK_ROWS = 256  # rows per transposed block: four feature rows and the sums stay in L1
 # The transposed block's rows are 8 doubles longer than the block: at a
 # 4 KiB stride (512 rows) the stores of one row of X all map to the same
-# L1 sets, and the transpose took 3x as long.
+# L1 sets, and the transpose slowed down several times.
 _PAD = 8
 
 

@@ -2,35 +2,34 @@
 
 Two kernels, each one float64 signature compiled on first use (never at
 import) and cached on disk when a cache directory is writable (see
-``_numba_config.jit``); only multiclass fits compile them.
+``config.jit``); only multiclass fits compile them.
 
 ``softmax_rows``
     The softmax likelihood of a block of rows in one read of ``eta``: the
     weighted loss sum, ``g = w (p - onehot(y))`` and, when asked, the packed
-    upper triangle of each row's Hessian factor ``w (diag p - p p^T)``. The
-    numpy version made ten passes over (n, K) temporaries, two fancy-index
-    gathers for the class pairs and a second ``exp`` for p. Measured at
-    K = 10, one thread: loss and g 0.19 -> 0.09-0.14 us a row; with h
-    0.62-0.77 -> 0.25 us.
+    upper triangle of each row's Hessian factor ``w (diag p - p p^T)``, in
+    one read instead of numpy's ten passes over (n, K) temporaries, two
+    fancy-index gathers for the class pairs and a second ``exp`` for p
+    (figures in benchmarks/README.md).
 
 ``pack_outer``
     The packed outer products ``x_a x_b`` (a <= b) of a sub-block of rows,
     one row of the output per pair, for the GEMM of the multiclass Hessian
-    pass (``_design``). The same loop in numpy is one broadcast product per
-    column a, d + 1 calls per sub-block, which held the GIL between them and
-    cost half as much as the GEMM itself at d = 50.
+    pass (``_linear.design``). The same loop in numpy is one broadcast
+    product per column a, d + 1 calls per sub-block, which held the GIL
+    between them and cost a large share of the GEMM itself.
 
 ``moderated_softmax_rows``
     The moderated (probit-approximation) log predictive of a piece of rows
     from their latent means and packed covariances (the formula is in
-    ``GaussianPosteriorClassifier._moderated_multiclass``): a compiled loop
+    ``PosteriorPredictiveMixin._moderated_multiclass``): a compiled loop
     for the K(K-1)/2 pairwise exponents (one square root each)
     spread with their signs and row shifts over K x K,
     numpy's SIMD exp, and a compiled loop for the sums and the
-    renormalisation. The numpy version, five (n, K, K)
-    temporaries and reductions along their short last axis, took 160 ms for
-    n = 1e5, K = 10 on one thread; one compiled loop calling exp and sqrt
-    itself 109 ms.
+    renormalisation. It beats both the numpy version (five (n, K, K)
+    temporaries and reductions along their short last axis) and one
+    compiled loop calling exp and sqrt itself (figures in
+    benchmarks/README.md).
 
 All run in the design's worker threads (``nogil``) on the rows of one task.
 """

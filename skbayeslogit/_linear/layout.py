@@ -146,6 +146,11 @@ class ParameterLayout:
         return mask
 
 
+def as_layout(obj):
+    """``obj`` if it is a :class:`ParameterLayout`, else the layout it carries (a design's)."""
+    return obj if isinstance(obj, ParameterLayout) else obj.layout
+
+
 def zero_sum_basis(K):
     """Orthonormal basis (K, K-1) of vectors whose entries sum to zero."""
     # Q from the QR of the centring matrix's first K-1 columns spans that space.

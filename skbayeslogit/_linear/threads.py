@@ -3,7 +3,7 @@
 Passes over row spans (the design's gradient and Hessian passes, the range
 scan of validation, the predictive moments) run as tasks on a small thread
 pool of the process's own when they are large enough to pay
-(``_map_tasks``); the workers take the place of BLAS's own threads, which
+(``map_tasks``); the workers take the place of BLAS's own threads, which
 are held at one while they run (``passes_own_threads``). The split of rows
 into tasks (``task_span``) depends on n and the block size only, so sums
 come out the same however many threads run them.
@@ -59,7 +59,7 @@ def _blas_threads():
 # under that hold and take the count it recorded for their workers. When
 # every fit limited and restored on its own, two interleaved fits could
 # leave BLAS at one thread for good (the second recorded the first's limit
-# as the original; seen in 1 of 30 runs of 4 threads x 200 fits).
+# as the original; ``tests/test_concurrency.py`` checks it).
 _hold_lock = threading.Lock()
 _hold_owner = None  # ident of the thread whose fit set the limit
 _hold_threads = 1  # BLAS's own count, recorded by that fit
@@ -71,8 +71,8 @@ def passes_own_threads():
 
     Lowering BLAS's thread count around every pass and restoring it after
     made the next small multi-threaded LAPACK call (the Cholesky of the
-    Newton step) wait for OpenBLAS's threads to wake: 10-100 ms measured
-    for a 509 x 509 factor that takes 1 ms. Holding one thread from the
+    Newton step) wait for OpenBLAS's threads to wake, far longer than the
+    factor itself. Holding one thread from the
     start of a fit to its end removes that wait; the passes still use as
     many workers as BLAS was allowed threads (at most ``_MAX_WORKERS``).
     Nested use is a no-op. The BLAS setting is process-wide, as is
@@ -111,8 +111,8 @@ def task_span(n, rows):
     At least four tasks per pass when the data have four blocks, so that a
     subsample's pass (20,000 rows, say) still keeps every worker busy; and
     the tasks are of nearly equal size in a number divisible by 1, 2 and 4
-    workers: 39 blocks in five tasks of 8 left one of two workers with 24
-    blocks while the other had 15. The split depends on n and the block
+    workers (five tasks of 8 blocks left one of two workers with far more
+    blocks than the other). The split depends on n and the block
     size only, never on the worker count, so the sums are the same however
     many threads run them.
     """
@@ -123,11 +123,20 @@ def task_span(n, rows):
     return rows * -(-blocks // tasks)
 
 
-_SERIAL_WORK = 2e7  # flops below which a pass runs in the calling thread (~1 ms)
+def row_spans(n, rows, span=None):
+    """The (first, last) row ranges of a pass's tasks over n rows.
+
+    ``span`` rows a task, by default :func:`task_span` ``(n, rows)``.
+    """
+    span = task_span(n, rows) if span is None else max(int(span), 1)
+    return [(first, min(first + span, n)) for first in range(0, n, span)]
 
 
-def _worker_count(n_tasks, work=None):
-    """How many threads ``_map_tasks`` uses for ``n_tasks`` tasks of ``work`` flops."""
+_SERIAL_WORK = 2e7  # flops below which a pass runs in the calling thread
+
+
+def worker_count(n_tasks, work=None):
+    """How many threads ``map_tasks`` uses for ``n_tasks`` tasks of ``work`` flops."""
     held = getattr(_held, "threads", None)
     threads = held if held is not None else _blas_threads()
     if work is not None and work < _SERIAL_WORK:
@@ -135,12 +144,12 @@ def _worker_count(n_tasks, work=None):
     return max(1, min(threads, _MAX_WORKERS, n_tasks))
 
 
-def _map_tasks(func, tasks, fold=None, work=None, blas=True):
+def map_tasks(func, tasks, fold=None, work=None, blas=True):
     """``[func(*t) for t in tasks]``, spread over threads when it pays.
 
     ``work``, the pass's approximate flop count, keeps small passes in the
-    calling thread: handing tasks to workers and back costs ~0.1 ms a pass,
-    as much as the whole pass at n = 10,000, d = 20.
+    calling thread: handing tasks to workers and back costs as much as a
+    whole small pass (figures in benchmarks/README.md).
 
     With ``fold``, the results are instead combined in task order as they
     arrive, ``acc = fold(acc, result)``, and ``acc`` is returned: at most a
@@ -158,12 +167,12 @@ def _map_tasks(func, tasks, fold=None, work=None, blas=True):
     """
     global _pool, _pool_workers
     held = getattr(_held, "threads", None)
-    workers = _worker_count(len(tasks), work)
+    workers = worker_count(len(tasks), work)
     if workers <= 1:
         # One thread, or one task: no thread-count change. Lowering and
         # restoring the BLAS thread count around a small pass made the next
-        # small LAPACK call (the Cholesky of the Newton step) wait ~10 ms for
-        # OpenBLAS's threads on a busy machine: more than a small fit.
+        # small LAPACK call (the Cholesky of the Newton step) wait for
+        # OpenBLAS's threads on a busy machine, longer than a small fit.
         return _collect((func(*t) for t in tasks), fold)
     with _pool_lock:
         if _pool is None or _pool_workers < workers:
