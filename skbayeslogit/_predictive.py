@@ -16,6 +16,7 @@ from sklearn.utils.validation import check_is_fitted
 
 from ._checks.inputs import MAX_ABS_FEATURE, check_level, check_magnitude, check_positive_int
 from ._checks.params import as_generator
+from ._fit.column_evidence import estimator_column_evidence
 from ._fit.posterior import summary_table
 from ._fit.special import expit, log_normalise
 from ._kernels.softmax import moderated_softmax_rows
@@ -264,3 +265,28 @@ class PosteriorPredictiveMixin:
         check_is_fitted(self, "coef_")
         n = check_positive_int("n", n)
         return self._coef_draws(n, random_state)
+
+    def column_evidence(self, groups=None, X=None, y=None, sample_weight=None):
+        """Bayes factor of "no effect" for each column (or group of columns).
+
+        Parameters
+        ----------
+        groups : dict of str to list of str, optional
+            Original column -> the feature names that encode it (e.g. the
+            one-hot levels of a categorical column); by default every
+            feature alone.
+        X, y, sample_weight : optional
+            Without data: the closed-form Savage-Dickey ratio of the fitted
+            Gaussian posterior (Dickey 1971), accurate while zero lies
+            within the posterior's bulk. With the data: the ratio of the
+            Laplace evidences with and without each group, refitted at
+            ``prior_scale_`` (one fit per group), accurate in the tails too.
+
+        Returns
+        -------
+        pandas.DataFrame
+            One row per group: ``n_parameters``, ``log10_bf_no_effect``
+            (positive favours no effect), ``evidence`` (Kass & Raftery's
+            verbal scale) and ``method``.
+        """
+        return estimator_column_evidence(self, groups, X, y, sample_weight)

@@ -163,8 +163,9 @@ def test_a_group_of_levels_is_one_factor():
 def test_probit_has_column_evidence_too():
     x, y = _one_slope_data(300, 0.3)
     model = ProbitClassifier(prior_scale=1.0).fit(np.column_stack([x, -x + 0.1 * x**2]), y)
-    table = estimator_column_evidence(model)
+    table = model.column_evidence()  # the estimators' method
     assert np.isfinite(table["log10_bf_no_effect"]).all()
+    pd.testing.assert_frame_equal(table, estimator_column_evidence(model))
 
 
 def test_savage_dickey_of_one_gaussian_coordinate():
