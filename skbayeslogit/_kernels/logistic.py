@@ -13,10 +13,8 @@ right row is log1p(e) without cancellation.
 Split of the work: numpy's ``exp`` and ``log1p`` fill e and log1p(e) into
 the output arrays; one compiled loop then does the rest (the loss sum and g,
 h, overwriting those arrays) in a single read. numpy's SIMD versions are
-far cheaper than numba's scalar calls: with numpy 2.4 on the 2-core
-development machine, 0.85 and 1.2 ns a value, and the whole pointwise step
-4.4 ns a row, against 10.5 ns a row for a compiled loop calling exp, log1p
-and the division itself. The loss is summed in chunks of 1024 rows, so the
+far cheaper than numba's scalar calls (benchmarks/README.md has the
+figures). The loss is summed in chunks of 1024 rows, so the
 rounding error of the sum stays near (1024 + n / 1024) ulp.
 
 The gradient-only pass on the design's worker threads (``gradient_span``)
