@@ -1,0 +1,1 @@
+"""From a table to a design: reading exports, column roles and the encoding."""
