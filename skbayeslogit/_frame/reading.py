@@ -43,7 +43,7 @@ DELIMITERS = (",", ";", "\t", "|")
 _DELIMITER_NAMES = {",": "comma", ";": "semicolon", "\t": "tab", "|": "pipe"}
 _SAMPLE_CHARS = 65536
 # A text column counts as "numeric-looking" when at least this share of its
-# distinct values parse as numbers (a judgement call: one stray cell in a
+# non-missing cells parse as numbers (a judgement call: one stray cell in a
 # column of numbers is the case the rule is for).
 NUMERIC_LOOKING_SHARE = 0.8
 _UNIT = r"[^\s\d+\-.,][^\s]*"
@@ -293,18 +293,18 @@ def parse_number_text(col, decimal="."):
         A cell that did not parse, for a numeric-looking column left as text.
     """
     grouped, plain = _NUMBER[decimal]
-    distinct = pd.Series(col.dropna().astype(str).str.strip().unique())
+    counts = col.dropna().astype(str).str.strip().value_counts(sort=False)
+    distinct = pd.Series(counts.index)
     if distinct.empty:
         return None, "", "", None
     parts = distinct.str.extract(f"^(?P<num>{grouped}|{plain})\\s*(?P<unit>{_UNIT})?$")
     ok = parts["num"].notna()
     if not ok.all():
+        bad = distinct[~ok].iloc[0]
         other = "," if decimal == "." else "."
         if distinct.str.fullmatch("(?:{}|{})".format(*_NUMBER[other])).all():
-            bad = distinct[~ok].iloc[0]
             return None, "", f"numbers such as {bad!r} need decimal={other!r}", bad
-        if ok.mean() >= NUMERIC_LOOKING_SHARE:
-            bad = distinct[~ok].iloc[0]
+        if counts.to_numpy()[ok.to_numpy()].sum() >= NUMERIC_LOOKING_SHARE * counts.sum():
             return None, "", f"numeric-looking text; the cell {bad!r} is not a number", bad
         return None, "", "", None
     units = sorted(set(parts["unit"].fillna("")))
