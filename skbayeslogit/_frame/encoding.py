@@ -306,34 +306,13 @@ def encode_frame(
     _check_policy(missing)
     feats = roles.features
     codes = roles.target_codes(df)
-    miss = df[feats].isna()
-    per_col = miss.sum()
-    n_target_missing = int((codes < 0).sum())
     statements = []
-    if missing == "error" and (per_col.any() or n_target_missing):
-        counts = [f"{c}: {int(k)}" for c, k in per_col.items() if k]
-        counts += [f"{roles.target} (target): {n_target_missing}"] if n_target_missing else []
-        raise FrameInputError(
-            f"missing values in {', '.join(counts)}; pass missing='drop' to leave those rows "
-            "out or missing='impute' to fill them."
-        )
-    rows = codes >= 0
-    if missing == "drop":
-        rows &= ~miss.any(axis=1).to_numpy()
+    rows, imputed = _apply_policy(df, roles, codes, missing, statements)
     dropped = int((~rows).sum())
-    if dropped:
-        why = "a missing target" if missing == "impute" else "missing values"
-        statements.append(f"{dropped} of {len(df)} rows left out for {why}")
     used = df.loc[rows] if dropped else df
-    imputed = (
-        {c: int(k) for c, k in miss.loc[rows].sum().items() if k} if missing == "impute" else {}
-    )
-    if imputed:
-        counts = ", ".join(f"{c}: {k}" for c, k in imputed.items())
-        statements.append(f"imputed cells (median or most frequent level): {counts}")
-    reference = (
-        _reference_levels(used, roles.categorical, statements) if prior_scale is None else None
-    )
+    reference = None
+    if prior_scale is None:
+        reference = _reference_levels(used, roles.categorical, statements)
     encoder = make_encoder(
         roles.numeric,
         roles.categorical,
@@ -360,6 +339,34 @@ def encode_frame(
         imputed=imputed,
         statements=statements,
     )
+
+
+def _apply_policy(df, roles, codes, missing, statements):
+    """Rows used and cells to impute under the missing-value policy."""
+    miss = df[roles.features].isna()
+    per_col = miss.sum()
+    n_target_missing = int((codes < 0).sum())
+    if missing == "error" and (per_col.any() or n_target_missing):
+        counts = [f"{c}: {int(k)}" for c, k in per_col.items() if k]
+        counts += [f"{roles.target} (target): {n_target_missing}"] if n_target_missing else []
+        raise FrameInputError(
+            f"missing values in {', '.join(counts)}; pass missing='drop' to leave those rows "
+            "out or missing='impute' to fill them."
+        )
+    rows = codes >= 0
+    if missing == "drop":
+        rows &= ~miss.any(axis=1).to_numpy()
+    dropped = int((~rows).sum())
+    if dropped:
+        why = "a missing target" if missing == "impute" else "missing values"
+        statements.append(f"{dropped} of {len(df)} rows left out for {why}")
+    imputed = {}
+    if missing == "impute":
+        imputed = {c: int(k) for c, k in miss.loc[rows].sum().items() if k}
+    if imputed:
+        counts = ", ".join(f"{c}: {k}" for c, k in imputed.items())
+        statements.append(f"imputed cells (median or most frequent level): {counts}")
+    return rows, imputed
 
 
 def _reference_levels(used, categorical, statements):
