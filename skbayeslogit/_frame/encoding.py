@@ -322,12 +322,12 @@ def encode_frame(
         min_frequency=min_frequency,
         handle_unknown=handle_unknown,
     )
-    encoder.fit(used[feats])
+    Z = np.ascontiguousarray(encoder.fit_transform(used[feats]), dtype=np.float64)
     weight = None
     if roles.weight is not None:
         weight = used[roles.weight].to_numpy(dtype=np.float64).copy()
     return EncodedDesign(
-        X=_design(encoder, used[feats]),
+        X=pd.DataFrame(Z, columns=list(encoder.get_feature_names_out()), index=used.index),
         y=codes[rows],
         classes=roles.classes,
         sample_weight=weight,
