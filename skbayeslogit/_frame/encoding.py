@@ -172,7 +172,8 @@ def column_groups(encoder):
 
 def _n_outputs(onehot, i):
     k = len(onehot.categories_[i])
-    rare = onehot.infrequent_categories_[i]
+    # The attribute exists only when pooling was asked for.
+    rare = getattr(onehot, "infrequent_categories_", [None] * (i + 1))[i]
     if rare is not None:
         k -= len(rare) - 1
     if onehot.drop_idx_ is not None and onehot.drop_idx_[i] is not None:
