@@ -240,11 +240,12 @@ def _detect_decimal_comma(frame, sep):
     comma_cols = [c for c in frame.columns if _is_text(frame[c]) and _all_comma_numbers(frame[c])]
     if not comma_cols:
         return ".", "decimal mark: '.' (no column of numbers written with a decimal comma)"
+    # "1.065" read with a decimal point may be 1065 with a thousands point:
+    # only values that no thousands grouping explains count against the comma.
     point_cols = [
         c
         for c in frame.columns
-        if pd.api.types.is_float_dtype(frame[c].dtype)
-        and not np.all(np.mod(frame[c].dropna().to_numpy(), 1) == 0)
+        if pd.api.types.is_float_dtype(frame[c].dtype) and not _maybe_grouped(frame[c])
     ]
     if point_cols:
         return ".", (
@@ -257,6 +258,11 @@ def _detect_decimal_comma(frame, sep):
         f"decimal mark: ',' (detected: ';' delimiter and numbers such as {example!r} in "
         f"{', '.join(map(str, comma_cols))})"
     )
+
+
+def _maybe_grouped(col):
+    v = col.dropna().to_numpy() * 1000.0
+    return bool(np.all(np.abs(v - np.round(v)) < 1e-6))
 
 
 def _all_comma_numbers(col):
