@@ -150,7 +150,8 @@ def read_table(path, *, sep=None, decimal=None, encoding=None, missing_tokens=MI
     tokens = list(missing_tokens)
     frame = _read(path, sep, decimal or ".", text_encoding, tokens)
     if decimal is None:
-        decimal, line = _detect_decimal_comma(frame, sep)
+        raw = _raw_reader(path, sep, text_encoding, tokens)
+        decimal, line = _detect_decimal_comma(frame, sep, raw)
         decisions.append(line)
         if decimal == ",":
             frame = _read(path, sep, ",", text_encoding, tokens)
@@ -234,19 +235,38 @@ def _check_duplicate_header(header, path):
         )
 
 
-def _detect_decimal_comma(frame, sep):
+def _raw_reader(path, sep, encoding, tokens):
+    """A function reading some columns of the file as text, untouched by number parsing."""
+
+    def read(columns):
+        return pd.read_csv(
+            path,
+            sep=sep,
+            encoding=encoding,
+            usecols=list(columns),
+            dtype=str,
+            na_values=tokens,
+            keep_default_na=False,
+            skipinitialspace=True,
+        )
+
+    return read
+
+
+def _detect_decimal_comma(frame, sep, raw):
     if sep != ";":
         return ".", "decimal mark: '.' (the delimiter is not ';')"
     comma_cols = [c for c in frame.columns if _is_text(frame[c]) and _all_comma_numbers(frame[c])]
     if not comma_cols:
         return ".", "decimal mark: '.' (no column of numbers written with a decimal comma)"
     # "1.065" read with a decimal point may be 1065 with a thousands point:
-    # only values that no thousands grouping explains count against the comma.
-    point_cols = [
-        c
-        for c in frame.columns
-        if pd.api.types.is_float_dtype(frame[c].dtype) and not _maybe_grouped(frame[c])
-    ]
+    # only cells that no thousands grouping explains count against the comma.
+    floats = [c for c in frame.columns if pd.api.types.is_float_dtype(frame[c].dtype)]
+    point_cols = []
+    if floats:
+        text = raw(floats)
+        grouped = r"[+-]?\d{1,3}(?:\.\d{3})+|[+-]?\d+"
+        point_cols = [c for c in floats if not text[c].dropna().str.fullmatch(grouped).all()]
     if point_cols:
         return ".", (
             f"decimal mark: '.' kept although {', '.join(map(str, comma_cols))} use a decimal "
@@ -258,11 +278,6 @@ def _detect_decimal_comma(frame, sep):
         f"decimal mark: ',' (detected: ';' delimiter and numbers such as {example!r} in "
         f"{', '.join(map(str, comma_cols))})"
     )
-
-
-def _maybe_grouped(col):
-    v = col.dropna().to_numpy() * 1000.0
-    return bool(np.all(np.abs(v - np.round(v)) < 1e-6))
 
 
 def _all_comma_numbers(col):
