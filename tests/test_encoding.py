@@ -191,3 +191,25 @@ def test_bad_policy_is_one_line():
     with pytest.raises(FrameInputError, match="missing must be one of") as info:
         make_encoder(["a"], [], missing="fill")
     assert "\n" not in str(info.value)
+
+
+def test_categorical_encoder_survives_clone_and_pickle(fair):
+    import pickle
+
+    from sklearn.base import clone
+
+    from skbayeslogit._frame.levels import CategoricalEncoder, LevelCodes
+
+    cols = ["occupation", "rating"]
+    enc = CategoricalEncoder(reference={"occupation": "occ3", "rating": "r5"}).fit(fair[cols])
+    again = clone(enc).fit(fair[cols])
+    loaded = pickle.loads(pickle.dumps(enc))
+    np.testing.assert_array_equal(again.transform(fair[cols]), enc.transform(fair[cols]))
+    np.testing.assert_array_equal(loaded.transform(fair[cols]), enc.transform(fair[cols]))
+    assert list(loaded.get_feature_names_out()) == list(enc.get_feature_names_out())
+    assert "occupation=occ3" not in enc.get_feature_names_out()
+    # The codes are the positions among the sorted levels: pandas' Categorical
+    # with sorted categories gives the same numbers.
+    codes = LevelCodes().fit(fair[cols]).transform(fair[cols])
+    ref = pd.Categorical(fair["occupation"], categories=sorted(fair["occupation"].unique()))
+    np.testing.assert_array_equal(codes[:, 0], ref.codes)

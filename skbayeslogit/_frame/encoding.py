@@ -2,10 +2,11 @@
 
 :func:`make_encoder` returns a ``ColumnTransformer``: numeric columns pass
 through (or are imputed with their median under ``missing="impute"``);
-categorical columns are read as text, imputed with their most frequent level
-(``missing="impute"`` only) and one-hot encoded with output names
-``column=level``. Rare levels can be pooled into ``column=(rare levels)``
-(``max_categories``, ``min_frequency``).
+categorical columns go through :class:`~skbayeslogit._frame.levels.CategoricalEncoder`
+(text levels to codes, ``SimpleImputer(strategy="most_frequent")`` under
+``missing="impute"``, ``OneHotEncoder``), with output names ``column=level``.
+Rare levels can be pooled into ``column=(rare levels)`` (``max_categories``,
+``min_frequency``).
 
 With a prior (``prior_scale`` not None) every level keeps a coefficient: the
 prior identifies them. Without one (maximum likelihood) the levels of a
@@ -25,56 +26,11 @@ import numpy as np
 import pandas as pd
 from sklearn.compose import ColumnTransformer
 from sklearn.impute import SimpleImputer
-from sklearn.pipeline import Pipeline
-from sklearn.preprocessing import FunctionTransformer, OneHotEncoder
 
 from .errors import FrameInputError
+from .levels import CategoricalEncoder
 
 MISSING_POLICIES = ("error", "drop", "impute")
-RARE_LEVELS = "(rare levels)"
-
-
-def level_name(column, level):
-    """Output name of one level: ``column=level`` (pooled rare levels: ``column=(rare levels)``).
-
-    Parameters
-    ----------
-    column : str
-    level : object
-
-    Returns
-    -------
-    str
-    """
-    if level == "infrequent_sklearn":
-        level = RARE_LEVELS
-    return f"{column}={level}"
-
-
-def as_text(X):
-    """Categorical cells as Python strings, missing cells as ``np.nan``.
-
-    Parameters
-    ----------
-    X : pandas.DataFrame or array-like, shape (n, k)
-
-    Returns
-    -------
-    ndarray of object, shape (n, k)
-    """
-    frame = pd.DataFrame(X)
-    out = np.empty(frame.shape, dtype=object)
-    for j in range(frame.shape[1]):
-        col = frame.iloc[:, j]
-        if isinstance(col.dtype, pd.CategoricalDtype):
-            # Map the few categories, not every cell.
-            cats = np.array([str(c) for c in col.cat.categories] + [np.nan], dtype=object)
-            out[:, j] = cats[col.cat.codes.to_numpy()]
-            continue
-        miss = col.isna().to_numpy()
-        out[:, j] = col.astype(str).to_numpy(dtype=object)
-        out[miss, j] = np.nan
-    return out
 
 
 def make_encoder(
@@ -109,28 +65,17 @@ def make_encoder(
     """
     _check_policy(missing)
     impute = missing == "impute"
-    steps = [("text", FunctionTransformer(as_text, feature_names_out="one-to-one"))]
-    if impute:
-        steps.append(("impute", SimpleImputer(strategy="most_frequent")))
-    drop = None if reference is None else [reference[c] for c in categorical]
-    steps.append(
-        (
-            "onehot",
-            OneHotEncoder(
-                drop=drop,
-                handle_unknown=handle_unknown,
-                max_categories=max_categories,
-                min_frequency=min_frequency,
-                sparse_output=False,
-                dtype=np.float64,
-                feature_name_combiner=level_name,
-            ),
-        )
+    cat = CategoricalEncoder(
+        impute=impute,
+        reference=reference,
+        handle_unknown=handle_unknown,
+        max_categories=max_categories,
+        min_frequency=min_frequency,
     )
     num = SimpleImputer(strategy="median") if impute else "passthrough"
     parts = [("numeric", num, list(numeric))]
     if categorical:
-        parts.append(("categorical", Pipeline(steps), list(categorical)))
+        parts.append(("categorical", cat, list(categorical)))
     return ColumnTransformer(parts, verbose_feature_names_out=False, sparse_threshold=0.0)
 
 
@@ -153,32 +98,13 @@ def column_groups(encoder):
     dict
         Original column -> list of output names, in output order.
     """
-    names = list(encoder.get_feature_names_out())
     groups = {}
-    pos = 0
     for name, _, cols in encoder.transformers_:
         if name == "numeric":
-            for c in cols:
-                groups[c] = [names[pos]]
-                pos += 1
+            groups.update({c: [c] for c in cols})
         elif name == "categorical":
-            onehot = encoder.named_transformers_["categorical"].named_steps["onehot"]
-            for i, c in enumerate(cols):
-                k = _n_outputs(onehot, i)
-                groups[c] = names[pos : pos + k]
-                pos += k
+            groups.update(encoder.named_transformers_["categorical"].output_groups())
     return groups
-
-
-def _n_outputs(onehot, i):
-    k = len(onehot.categories_[i])
-    # The attribute exists only when pooling was asked for.
-    rare = getattr(onehot, "infrequent_categories_", [None] * (i + 1))[i]
-    if rare is not None:
-        k -= len(rare) - 1
-    if onehot.drop_idx_ is not None and onehot.drop_idx_[i] is not None:
-        k -= 1
-    return k
 
 
 def count_unseen(encoder, df):
@@ -198,17 +124,8 @@ def count_unseen(encoder, df):
     """
     if "categorical" not in encoder.named_transformers_:
         return {}
-    onehot = encoder.named_transformers_["categorical"].named_steps["onehot"]
     cols = next(cols for name, _, cols in encoder.transformers_ if name == "categorical")
-    text = as_text(df[cols])
-    out = {}
-    for j, c in enumerate(cols):
-        known = pd.Index(onehot.categories_[j])
-        cells = pd.Series(text[:, j])
-        unseen = cells.notna().to_numpy() & ~cells.isin(known).to_numpy()
-        if unseen.any():
-            out[c] = int(unseen.sum())
-    return out
+    return encoder.named_transformers_["categorical"].unseen_counts(df[cols])
 
 
 @dataclass
@@ -268,7 +185,13 @@ class EncodedDesign:
 
 def _design(encoder, df):
     Z = np.ascontiguousarray(encoder.transform(df), dtype=np.float64)
-    return pd.DataFrame(Z, columns=list(encoder.get_feature_names_out()), index=df.index)
+    return _frame_of(Z, encoder, df.index)
+
+
+def _frame_of(Z, encoder, index):
+    # Z is a fresh C-contiguous array: wrapping it without a copy keeps
+    # ``X.to_numpy()`` C-contiguous too, which is what the estimators use.
+    return pd.DataFrame(Z, columns=list(encoder.get_feature_names_out()), index=index, copy=False)
 
 
 def encode_frame(
@@ -328,7 +251,7 @@ def encode_frame(
     if roles.weight is not None:
         weight = used[roles.weight].to_numpy(dtype=np.float64).copy()
     return EncodedDesign(
-        X=pd.DataFrame(Z, columns=list(encoder.get_feature_names_out()), index=used.index),
+        X=_frame_of(Z, encoder, used.index),
         y=codes[rows],
         classes=roles.classes,
         sample_weight=weight,
@@ -374,12 +297,14 @@ def _reference_levels(used, categorical, statements):
     """The most frequent level of each categorical column (ties: first in sort order)."""
     reference = {}
     for c in categorical:
-        counts = pd.Series(as_text(used[[c]])[:, 0]).value_counts()
-        top = counts[counts == counts.iloc[0]].index
-        reference[c] = sorted(top)[0]
+        codes, uniques = pd.factorize(used[c])
+        counts = pd.Series(np.bincount(codes[codes >= 0], minlength=len(uniques)))
+        counts.index = [str(u) for u in uniques]
+        counts = counts.groupby(level=0).sum()
+        top = counts.max()
+        reference[c] = sorted(counts.index[counts == top])[0]
         statements.append(
-            f"{c!r}: reference level {reference[c]!r} (the most frequent, "
-            f"{int(counts.iloc[0])} rows) has no coefficient; with prior_scale=None "
-            "the intercept carries it"
+            f"{c!r}: reference level {reference[c]!r} (the most frequent, {int(top)} rows) "
+            "has no coefficient; with prior_scale=None the intercept carries it"
         )
     return reference

@@ -168,7 +168,8 @@ def read_table(path, *, sep=None, decimal=None, encoding=None, missing_tokens=MI
 def _choose_encoding(path, encoding):
     if encoding is not None:
         return encoding, [f"encoding: {encoding} (given)"]
-    raw = path.read_bytes()[: 4 * _SAMPLE_CHARS]
+    with open(path, "rb") as fh:
+        raw = fh.read(4 * _SAMPLE_CHARS)
     bom = raw.startswith(b"\xef\xbb\xbf")
     try:
         raw.decode("utf-8")
@@ -292,18 +293,22 @@ def _is_text(col):
     return pd.api.types.is_string_dtype(col.dtype) or col.dtype == object
 
 
-def parse_number_text(col, decimal="."):
+def parse_number_text(col, decimal=".", factorized=None):
     """Try to read a text column as numbers (thousands separators, one shared unit).
+
+    The patterns are matched once per distinct cell, not per row.
 
     Parameters
     ----------
     col : pandas.Series
         Text cells; missing cells stay missing.
     decimal : {".", ","}
+    factorized : tuple (codes, uniques), optional
+        ``pandas.factorize(col)`` when the caller has it already.
 
     Returns
     -------
-    values : pandas.Series of float64 or None
+    values : ndarray of float64 or None
         The numbers, or None when the column is not read as numbers.
     unit : str
         The unit every number carried ("" if none).
@@ -313,19 +318,20 @@ def parse_number_text(col, decimal="."):
     example : str or None
         A cell that did not parse, for a numeric-looking column left as text.
     """
-    grouped, plain = _NUMBER[decimal]
-    counts = col.dropna().astype(str).str.strip().value_counts(sort=False)
-    distinct = pd.Series(counts.index)
-    if distinct.empty:
+    codes, uniques = pd.factorize(col) if factorized is None else factorized
+    if len(uniques) == 0:
         return None, "", "", None
+    counts = np.bincount(codes[codes >= 0], minlength=len(uniques))
+    distinct = pd.Series(np.asarray(uniques, dtype=object)).astype(str).str.strip()
+    grouped, plain = _NUMBER[decimal]
     parts = distinct.str.extract(f"^(?P<num>{grouped}|{plain})\\s*(?P<unit>{_UNIT})?$")
-    ok = parts["num"].notna()
+    ok = parts["num"].notna().to_numpy()
     if not ok.all():
         bad = distinct[~ok].iloc[0]
         other = "," if decimal == "." else "."
         if distinct.str.fullmatch("(?:{}|{})".format(*_NUMBER[other])).all():
             return None, "", f"numbers such as {bad!r} need decimal={other!r}", bad
-        if counts.to_numpy()[ok.to_numpy()].sum() >= NUMERIC_LOOKING_SHARE * counts.sum():
+        if counts[ok].sum() >= NUMERIC_LOOKING_SHARE * counts.sum():
             return None, "", f"numeric-looking text; the cell {bad!r} is not a number", bad
         return None, "", "", None
     units = sorted(set(parts["unit"].fillna("")))
@@ -337,11 +343,10 @@ def parse_number_text(col, decimal="."):
         numbers = numbers.str.replace(".", "", regex=False).str.replace(",", ".", regex=False)
     else:
         numbers = numbers.str.replace(",", "", regex=False)
-    lookup = dict(zip(distinct, numbers.astype(np.float64), strict=True))
-    values = col.astype(object).map(lambda v: lookup.get(str(v).strip(), np.nan))
-    values = values.astype(np.float64)
+    table = np.append(numbers.to_numpy(dtype=np.float64), np.nan)
+    values = table[codes]  # code -1 (missing) picks the trailing NaN
     sep = "'.'" if decimal == "," else "','"
-    grouped_used = distinct[ok].str.fullmatch(grouped).any()
+    grouped_used = distinct.str.fullmatch(grouped).any()
     how = [f"unit {units[0]!r} stripped"] if units[0] else []
     how += [f"thousands separator {sep} removed"] if grouped_used else []
     return values, units[0], "read as numbers" + (f" ({'; '.join(how)})" if how else ""), None

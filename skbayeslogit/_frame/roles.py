@@ -88,7 +88,7 @@ class ColumnRoles:
         -------
         ndarray of int64, shape (n_rows,)
         """
-        return pd.Index(list(self.classes)).get_indexer(df[self.target]).astype(np.int64)
+        return codes_into(df[self.target], self.classes)
 
 
 def _names(value, what, columns):
@@ -109,9 +109,52 @@ def _is_id_name(name):
     return bool(words) and words[-1] in ID_WORDS
 
 
-def _kind(col):
+@dataclass
+class _Facts:
+    """What every rule needs to know about a column, computed once."""
+
+    codes: np.ndarray
+    uniques: object
+    missing: int
+    distinct: int
+    kind: str
+
+
+def _facts(col):
     dtype = col.dtype
-    if col.notna().sum() == 0:
+    if pd.api.types.is_numeric_dtype(dtype) and not pd.api.types.is_bool_dtype(dtype):
+        # Sorting is cheaper than hashing many distinct floats; the codes are
+        # only needed when the column has few values (see _is_target_copy).
+        values = col.to_numpy(dtype=np.float64, na_value=np.nan)
+        present = values[~np.isnan(values)]
+        uniques = np.unique(present)
+        kind = "numeric" if len(uniques) else "empty"
+        return _Facts(None, uniques, len(values) - len(present), len(uniques), kind)
+    codes, uniques = pd.factorize(col)
+    missing = int((codes < 0).sum())
+    return _Facts(codes, uniques, missing, len(uniques), _kind(col, uniques))
+
+
+def codes_into(col, classes):
+    """Integer codes of ``col`` into ``classes`` (-1 where missing or not a class).
+
+    Parameters
+    ----------
+    col : pandas.Series
+    classes : sequence
+
+    Returns
+    -------
+    ndarray of int64
+    """
+    codes, uniques = pd.factorize(col)
+    where = np.append(pd.Index(list(classes)).get_indexer(uniques), -1).astype(np.int64)
+    return where[codes]
+
+
+def _kind(col, uniques):
+    dtype = col.dtype
+    if len(uniques) == 0:
         return "empty"
     if pd.api.types.is_bool_dtype(dtype) or isinstance(dtype, pd.CategoricalDtype):
         return "categorical"
@@ -119,45 +162,46 @@ def _kind(col):
         return "numeric"
     if pd.api.types.is_datetime64_any_dtype(dtype) or isinstance(dtype, pd.PeriodDtype):
         return "date"
-    non_missing = col.dropna()
-    if non_missing.map(type).isin([bool, np.bool_]).all():
-        return "categorical"
+    if pd.api.types.is_object_dtype(dtype):
+        if all(isinstance(u, bool | np.bool_) for u in uniques):
+            return "categorical"
     return "text"
 
 
-def _is_target_copy(col, name, target, tcodes):
+def _is_target_copy(facts, col, name, target, tcodes):
     if re.fullmatch(re.escape(str(target)) + r"\.\d+", str(name)):
         return "a renamed duplicate of the target header"
-    seen = tcodes >= 0
-    if col[seen].isna().any():
-        return None
-    codes, uniques = pd.factorize(col[seen], sort=False)
     k = int(tcodes.max()) + 1
-    if len(uniques) != k:
+    n_unlabelled = int((tcodes < 0).sum())
+    # A one-to-one column has exactly k values on the labelled rows.
+    if not k <= facts.distinct <= k + n_unlabelled:
         return None
-    pairs = np.unique(codes.astype(np.int64) * k + tcodes[seen])
+    seen = tcodes >= 0
+    all_codes = facts.codes if facts.codes is not None else pd.factorize(col)[0]
+    codes = all_codes[seen].astype(np.int64)
+    if codes.min() < 0 or len(np.unique(codes)) != k:
+        return None
+    pairs = np.unique(codes * k + tcodes[seen])
     return "one-to-one with the target" if len(pairs) == k else None
 
 
-def _auto_id(col, name, kind, n):
-    integer_like = pd.api.types.is_integer_dtype(col.dtype) or kind == "text"
-    if not integer_like:
+def _auto_id(facts, col, name, n):
+    if not (pd.api.types.is_integer_dtype(col.dtype) or facts.kind == "text"):
         return None
     if _is_id_name(name):
         return "taken as an ID by its name"
-    distinct = col.nunique(dropna=True)
-    if n >= ID_MIN_ROWS and distinct >= ID_DISTINCT_SHARE * n:
-        return f"taken as an ID: {distinct} distinct values in {n} rows"
+    if n >= ID_MIN_ROWS and facts.distinct >= ID_DISTINCT_SHARE * n:
+        return f"taken as an ID: {facts.distinct} distinct values in {n} rows"
     return None
 
 
-def _feature_or_reason(col, kind, max_levels, unparsed):
+def _feature_or_reason(facts, col, max_levels, unparsed):
     """('feature', kind) or ('left out', reason) for a column with no explicit role."""
-    distinct = col.nunique(dropna=True)
+    kind, distinct = facts.kind, facts.distinct
     if kind == "empty":
         return "left out", "all values missing"
     if distinct == 1:
-        value = col.dropna().iloc[0]
+        value = facts.uniques[0]
         value = value.item() if isinstance(value, np.generic) else value
         return "left out", f"constant (every value is {value!r})"
     if kind == "date":
@@ -167,7 +211,7 @@ def _feature_or_reason(col, kind, max_levels, unparsed):
     if kind == "text":
         example = unparsed.get(col.name)
         if example is None:
-            _, _, why, example = parse_number_text(col)
+            _, _, why, example = parse_number_text(col, factorized=(facts.codes, facts.uniques))
             if example is not None:
                 return "left out", why
         else:
@@ -179,14 +223,14 @@ def _feature_or_reason(col, kind, max_levels, unparsed):
     return "feature", f"categorical, {distinct} levels"
 
 
-def _row(name, col, role, kind, reason):
+def _row(name, facts, role, kind, reason):
     return {
         "column": name,
         "role": role,
         "kind": kind,
         "reason": reason,
-        "missing": int(col.isna().sum()),
-        "distinct": int(col.nunique(dropna=True)),
+        "missing": facts.missing,
+        "distinct": facts.distinct,
     }
 
 
@@ -249,8 +293,9 @@ def assign_roles(
     }
     _check_overlaps(target, given)
     classes, positive, statements = _target_classes(df[target], target, positive)
-    tcodes = pd.Index(list(classes)).get_indexer(df[target])
-    rows = [_row(target, df[target], "target", _kind(df[target]), "given as target=")]
+    tcodes = codes_into(df[target], classes)
+    tfacts = _facts(df[target])
+    rows = [_row(target, tfacts, "target", tfacts.kind, "given as target=")]
     context = (target, tcodes, given, max_levels, set(index_columns), unparsed or {}, len(df))
     for name in columns:
         if name != target:
@@ -295,15 +340,16 @@ def _check_overlaps(target, given):
 
 def _decide(col, name, context, statements):
     target, tcodes, given, max_levels, index_cols, unparsed, n = context
-    kind = _kind(col)
+    facts = _facts(col)
+    kind = facts.kind
     explicit = name in given["features="]
     if name in given["exclude="]:
-        return _row(name, col, "left out", kind, "given in exclude=")
+        return _row(name, facts, "left out", kind, "given in exclude=")
     if name in given["id="]:
-        return _row(name, col, "id", kind, "given as id=")
+        return _row(name, facts, "id", kind, "given as id=")
     if name in given["weight="]:
-        return _row(name, col, "weight", kind, "given as weight=")
-    copy = _is_target_copy(col, name, target, tcodes)
+        return _row(name, facts, "weight", kind, "given as weight=")
+    copy = _is_target_copy(facts, col, name, target, tcodes)
     if copy:
         raise FrameInputError(
             f"column {name!r} is {copy} {target!r}; a feature like it leaks the label: "
@@ -312,22 +358,22 @@ def _decide(col, name, context, statements):
     if name in index_cols or _INDEX_NAME.fullmatch(str(name)):
         if explicit:
             raise FrameInputError(f"column {name!r} is a saved row index, not a feature.")
-        return _row(name, col, "left out", kind, "saved row index (pandas-added column)")
+        return _row(name, facts, "left out", kind, "saved row index (pandas-added column)")
     if given["features="] and not explicit:
-        return _row(name, col, "left out", kind, "not among features=")
+        return _row(name, facts, "left out", kind, "not among features=")
     if not explicit:
-        why = _auto_id(col, name, kind, n)
+        why = _auto_id(facts, col, name, n)
         if why:
             statements.append(f"column {name!r} {why}; pass features=[...] to use it")
-            return _row(name, col, "id", kind, why)
-    role, reason = _feature_or_reason(col, kind, max_levels, unparsed)
+            return _row(name, facts, "id", kind, why)
+    role, reason = _feature_or_reason(facts, col, max_levels, unparsed)
     if role == "left out":
         if explicit:
             raise FrameInputError(f"feature column {name!r} cannot be used: {reason}.")
         statements.append(f"column {name!r} left out: {reason}")
-        return _row(name, col, role, kind, reason)
+        return _row(name, facts, role, kind, reason)
     kind = reason.split(",")[0]
-    return _row(name, col, "feature", kind, "given in features=" if explicit else reason)
+    return _row(name, facts, "feature", kind, "given in features=" if explicit else reason)
 
 
 def _check_weight(col, name):
