@@ -117,6 +117,13 @@ def test_target_copies_are_refused_by_values(cancer):
     coded = (cancer["diagnosis"] == "malignant").astype(int)
     with pytest.raises(FrameInputError, match="'is_malignant' is one-to-one with the target"):
         assign_roles(cancer.assign(is_malignant=coded), "diagnosis")
+    letter = cancer["diagnosis"].str[0].str.upper()
+    with pytest.raises(FrameInputError, match="'code_letter' is one-to-one with the target"):
+        assign_roles(cancer.assign(code_letter=letter), "diagnosis")
+    # Two values that do not follow the target are a feature like any other.
+    shuffled = coded.sample(frac=1.0, random_state=0).to_numpy()
+    result = assign_roles(cancer.assign(flag=shuffled), "diagnosis")
+    assert _roles(result)["flag"] == "feature"
 
 
 def test_saved_index_is_left_out_and_never_a_feature(cancer):

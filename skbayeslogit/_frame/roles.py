@@ -177,12 +177,18 @@ def _is_target_copy(facts, col, name, target, tcodes):
     if not k <= facts.distinct <= k + n_unlabelled:
         return None
     seen = tcodes >= 0
-    all_codes = facts.codes if facts.codes is not None else pd.factorize(col)[0]
-    codes = all_codes[seen].astype(np.int64)
-    if codes.min() < 0 or len(np.unique(codes)) != k:
-        return None
-    pairs = np.unique(codes * k + tcodes[seen])
-    return "one-to-one with the target" if len(pairs) == k else None
+    if facts.codes is None:  # numeric: uniques are sorted, no hashing needed
+        values = col.to_numpy(dtype=np.float64, na_value=np.nan)[seen]
+        if np.isnan(values).any():
+            return None
+        codes = np.searchsorted(facts.uniques, values).astype(np.int64)
+    else:
+        codes = facts.codes[seen].astype(np.int64)
+        if codes.min() < 0:
+            return None
+    pairs = np.bincount(codes * k + tcodes[seen], minlength=k * (codes.max() + 1))
+    used = np.count_nonzero(np.bincount(codes))
+    return "one-to-one with the target" if used == k and np.count_nonzero(pairs) == k else None
 
 
 def _auto_id(facts, col, name, n):
