@@ -1,0 +1,9 @@
+"""Errors and warnings about the input table (one line each, naming the column)."""
+
+
+class FrameInputError(ValueError):
+    """The table cannot be used as given; the message names the column and the problem."""
+
+
+class LabelVariantWarning(UserWarning):
+    """Target labels differ only by letter case or surrounding spaces."""
