@@ -28,6 +28,7 @@ from ._output.interrupts import (
     EXIT_INTERRUPTED,
     EXIT_TERMINATED,
     Terminated,
+    exit_quietly_on_signals,
     terminate_as_exception,
 )
 from ._output.run_folder import OutputError
@@ -167,8 +168,7 @@ def _cmd_report(args, say):
     if options["features"]:
         check_columns(df, options["features"], "feature")
     # The output folder is checked, and its staging folder made, before the work.
-    folder = _run_folder(args.out)
-    with folder or nullcontext():
+    with _run_folder(args.out) or nullcontext() as folder:
         report = build_report(
             df,
             target,
@@ -184,7 +184,7 @@ def _cmd_report(args, say):
             progress=say,
         )
         sys.stdout.write(render_text(report))
-        if folder is not None:
+        if args.out:
             say(f"writing tables, figures, models and report.html to {args.out}")
             written = write_outputs(report, df, folder, options=options, input_info=input_info)
             sys.stdout.write(
@@ -281,9 +281,11 @@ def run():
 
     After an interruption the process ends at once: worker threads may still
     be finishing a block of rows, and a second signal while the interpreter
-    waited for them would print a traceback.
+    waited for them would print a traceback. A signal during the shutdown
+    after a finished command ends the process quietly too.
     """
     code = main()
+    exit_quietly_on_signals()
     if code in (EXIT_INTERRUPTED, EXIT_TERMINATED):
         sys.stdout.flush()
         sys.stderr.flush()

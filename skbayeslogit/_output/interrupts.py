@@ -6,6 +6,7 @@ process by default, with no chance to remove a half-written output. Inside
 The exit codes follow the shell's convention, 128 + the signal number.
 """
 
+import os
 import signal
 import threading
 from contextlib import contextmanager
@@ -37,10 +38,35 @@ def terminate_as_exception():
 
 @contextmanager
 def signals_held():
-    """Hold Ctrl-C and SIGTERM until the block ends (they are delivered after it)."""
-    held = {signal.SIGINT, signal.SIGTERM}
-    old = signal.pthread_sigmask(signal.SIG_BLOCK, held)
+    """Hold Ctrl-C and SIGTERM until the block ends, then deliver the first one.
+
+    Blocking the signals with a thread mask is not enough: the kernel hands a
+    process's signal to any thread that does not block it (a worker thread),
+    and Python then runs the handler in the main thread all the same. So the
+    block swaps the handlers for ones that only note the signal. Outside the
+    main thread (where handlers cannot be set) the block holds nothing.
+    """
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    noted = []
+    held = (signal.SIGINT, signal.SIGTERM)
+    old = {signum: signal.signal(signum, lambda signum, frame: noted.append(signum))
+           for signum in held}  # fmt: skip
     try:
         yield
     finally:
-        signal.pthread_sigmask(signal.SIG_SETMASK, old)
+        for signum, handler in old.items():
+            signal.signal(signum, handler)
+        if noted:
+            signal.raise_signal(noted[0])
+
+
+def exit_quietly_on_signals():
+    """From now on Ctrl-C or SIGTERM end the process at once, with no traceback.
+
+    For the interpreter's shutdown after a finished command: its output is
+    complete, so a late signal only needs to end the process with its code.
+    """
+    signal.signal(signal.SIGINT, lambda signum, frame: os._exit(EXIT_INTERRUPTED))
+    signal.signal(signal.SIGTERM, lambda signum, frame: os._exit(EXIT_TERMINATED))

@@ -133,8 +133,9 @@ class RunFolder:
 
     def discard(self):
         """Remove the staging folder (and parents made for it); the target is untouched."""
-        shutil.rmtree(self.path, ignore_errors=True)
-        self._remove_parents()
+        with signals_held():
+            shutil.rmtree(self.path, ignore_errors=True)
+            self._remove_parents()
 
     def write_manifest(self, *, options, input_info, version):
         """Write ``manifest.json``: every staged file with its size and hash, and the run."""
