@@ -209,9 +209,9 @@ def _cmd_score(args, say):
     check_level(args.level)
     if args.out:
         check_file_target(args.out)
+    df, _ = read_table(args.file)
     saved = load_model_file(args.model_file, trust_pickle=args.trust_pickle)
     model, features = saved["model"], saved["features"]
-    df, _ = read_table(args.file)
     missing = [c for c in features if c not in df.columns]
     if missing:
         raise CommandError(
