@@ -22,9 +22,6 @@ SUFFIX = ".skops"
 #: new type fails a test instead of being trusted silently.
 TRUSTED_TYPES = (
     "skbayeslogit._fit.posterior.GaussianPosterior",
-    # The posterior keeps the moment kernel's inputs (arrays and an int)
-    # once it has predicted, and the report predicts before it saves.
-    "skbayeslogit._kernels.moments.BinaryMomentPlan",
     "skbayeslogit.laplace.LaplaceLogisticClassifier",
     "skbayeslogit.probit.ProbitClassifier",
     "skbayeslogit.standardized.StandardizedClassifier",
