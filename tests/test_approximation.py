@@ -258,3 +258,40 @@ def test_integer_weights_are_repeated_rows():
     b = doubled.check_approximation(np.vstack([x, x]), np.tile(y, 2), n_draws=1000, random_state=4)
     assert a.pareto_k == pytest.approx(b.pareto_k, abs=1e-6)
     assert np.allclose(a.coef_table(), b.coef_table(), rtol=1e-6, atol=1e-9)
+
+
+def test_accessor_checks_the_standardised_fit():
+    """df.bayeslogit.check_approximation: the fitted model's check on its own features.
+
+    Reference: the same model fitted by hand on scikit-learn's StandardScaler
+    output (population sd, as the accessor's standardisation), checked with
+    the same seed: the same posterior, so the same k and corrected table.
+    """
+    from sklearn.preprocessing import StandardScaler
+
+    from skbayeslogit.datasets import FEATURES, TARGET, make_orchard_lots
+
+    df = make_orchard_lots(150, random_state=0)
+    check = df.bayeslogit.check_approximation(TARGET, n_draws=1000, random_state=2)
+    Z = StandardScaler().fit_transform(df[list(FEATURES)].to_numpy(dtype=float))
+    by_hand = LaplaceLogisticClassifier().fit(Z, df[TARGET])
+    ref = by_hand.check_approximation(Z, df[TARGET], n_draws=1000, random_state=2)
+    assert check.pareto_k == pytest.approx(ref.pareto_k, abs=1e-6)
+    got, want = check.coef_table().to_numpy(), ref.coef_table().to_numpy()
+    assert np.allclose(got, want, rtol=1e-6, atol=1e-9)
+    assert check.verdict.startswith("The fast (Laplace) posterior")
+
+
+def test_accessor_bad_arguments():
+    from sklearn.dummy import DummyClassifier
+
+    from skbayeslogit.datasets import FEATURES, TARGET, make_orchard_lots
+
+    df = make_orchard_lots(60, random_state=0)
+    with pytest.raises(ValueError, match="^n_draws must be"):
+        df.bayeslogit.check_approximation(TARGET, n_draws=10)
+    with pytest.raises(TypeError, match="unexpected argument.*draws"):
+        df.bayeslogit.check_approximation(TARGET, draws=1000)
+    plain = DummyClassifier().fit(df[list(FEATURES)], df[TARGET])
+    with pytest.raises(TypeError, match="Laplace posterior.*DummyClassifier"):
+        df.bayeslogit.check_approximation(TARGET, plain)
