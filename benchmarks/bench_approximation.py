@@ -31,7 +31,7 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 
-from _common import make_logistic_data, time_interleaved  # noqa: E402
+from _common import make_logistic_data, print_table, time_interleaved  # noqa: E402
 
 CHECK_TARGET = 20.0
 SAMPLER_TARGET = 100.0
@@ -148,14 +148,10 @@ def main(argv=None):
     parser.add_argument("--quick", action="store_true", help="d = 20 only, n <= 1e5")
     args = parser.parse_args(argv)
     rows = run(quick=args.quick)
-    w = max(len(r["workload"]) for r in rows)
-    print(f"{'workload':<{w}}  {'check_s':>8}  {'fit_s':>8}  {'ratio':>7}  met   notes")
+    print_table(rows)
     for r in rows:
-        met = {True: "yes", False: "NO", None: "-"}[r["met"]]
-        print(
-            f"{r['workload']:<{w}}  {r['ours_s']:8.4f}  {r['reference_s']:8.4f}  "
-            f"{r['ratio']:7.1f}  {met:<4}  {r['notes']}"
-        )
+        if r["met"] is not None:
+            print(f"{r['workload']}: {r['target']}: {'met' if r['met'] else 'MISSED'}")
 
 
 if __name__ == "__main__":

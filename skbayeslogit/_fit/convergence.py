@@ -114,13 +114,8 @@ def _ess(chains):
 def ess_bulk(chains):
     """Bulk effective sample size: ESS of the rank-normalised split chains.
 
-    Parameters
-    ----------
-    chains : ndarray of shape (M, N) or (M, N, p)
-
-    Returns
-    -------
-    float or ndarray of shape (p,)
+    ``chains`` is shaped as for :func:`split_rhat`; a float for (M, N), one
+    value per quantity for (M, N, p).
     """
     halves = _split(chains)
     return _finish(_ess(_rank_normal(halves)), halves)
@@ -129,13 +124,7 @@ def ess_bulk(chains):
 def ess_tail(chains):
     """Tail effective sample size: the smaller ESS of the indicators of the 5% and 95% quantiles.
 
-    Parameters
-    ----------
-    chains : ndarray of shape (M, N) or (M, N, p)
-
-    Returns
-    -------
-    float or ndarray of shape (p,)
+    Shapes as for :func:`ess_bulk`.
     """
     halves = _split(chains)
     M, N = halves.shape[:2]

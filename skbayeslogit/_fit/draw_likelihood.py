@@ -81,15 +81,9 @@ class DrawLikelihood:
         return map_tasks(task, tasks, work=work)
 
     def log_likelihood(self, thetas):
-        """sum_i w_i log p(y_i | x_i, theta_s) for every row theta_s of ``thetas``.
+        """sum_i w_i log p(y_i | x_i, theta_s), shape (S,), for each row theta_s of ``thetas``.
 
-        Parameters
-        ----------
-        thetas : ndarray of shape (S, p_full)
-
-        Returns
-        -------
-        ndarray of shape (S,)
+        ``thetas`` (S, p_full) may hold many draws: X is read once for all.
         """
         thetas = np.ascontiguousarray(thetas, dtype=np.float64)
         S, q = len(thetas), self.layout.q
