@@ -559,7 +559,9 @@ def test_import_without_writable_cache_and_lazy_compilation():
         kernel = tr.normalise_general_serial
         assert kernel.signatures == [], "compiled at import"
         assert type(kernel._cache).__name__ == "NullCache"
-        p = tf.tempered_softmax([[0.0, 1.0, 2.0]], 1.3)
+        # One row of 20,000 classes: above the size below which calls take
+        # the numpy path (config.NUMPY_MAX_ELEMENTS), so the kernel compiles.
+        p = tf.tempered_softmax([[-1e12] * 19997 + [0.0, 1.0, 2.0]], 1.3)
         assert abs(p.sum() - 1) < 1e-14
         assert len(kernel.signatures) == 1
         print("ok")

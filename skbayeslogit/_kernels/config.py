@@ -39,6 +39,14 @@ Threading
 Flags
     ``fastmath`` is never used: the kernels rely on IEEE comparisons with
     infinities and on ``x > 0`` support tests that fast-math may fold away.
+
+Compile cost
+    A kernel that runs only on a few rows costs more to compile than it
+    saves, so the tempered kernels have a numpy path of the same algorithm
+    (:func:`launch_or_numpy`): calls below :data:`NUMPY_MAX_ELEMENTS` work
+    items take it, and a fit's passes (inside :func:`serial_kernels`) take it
+    until the kernel is compiled, which starts in a background thread
+    once they have spent :data:`COMPILE_AFTER_ELEMENTS` work items on numpy.
 """
 
 from __future__ import annotations
@@ -49,14 +57,34 @@ import threading
 
 import numba
 
-__all__ = ["jit", "lazy_kernel", "launch", "serial_kernels", "PARALLEL_MIN_ELEMENTS"]
+__all__ = [
+    "jit",
+    "lazy_kernel",
+    "launch",
+    "launch_or_numpy",
+    "serial_kernels",
+    "in_serial_kernels",
+    "PARALLEL_MIN_ELEMENTS",
+    "COMPILE_AFTER_ELEMENTS",
+    "NUMPY_MAX_ELEMENTS",
+]
 
 #: Number of (row x class) work items from which a parallel launch is used.
 #: Measured on the benchmark workloads: below this the thread wake-up costs
 #: more than the rows.
 PARALLEL_MIN_ELEMENTS = 1 << 15
 
+#: Calls with fewer work items outside a fit's passes run a kernel's numpy
+#: path: its compile cannot pay off on so few rows.
+NUMPY_MAX_ELEMENTS = 1 << 14
+
+#: Work items a process's passes may run on the numpy path of a kernel not yet
+#: compiled before its compile starts (in a background thread).
+COMPILE_AFTER_ELEMENTS = 1 << 22
+
 _launch_lock = threading.Lock()
+_compile_lock = threading.Lock()
+_numpy_work: dict = {}
 _parallel_forbidden = False
 _thread_state = threading.local()
 
@@ -75,6 +103,11 @@ def serial_kernels():
         yield
     finally:
         _thread_state.serial = previous
+
+
+def in_serial_kernels() -> bool:
+    """Whether this thread is inside :func:`serial_kernels` (a fit's pass)."""
+    return getattr(_thread_state, "serial", False)
 
 
 def _reset_after_fork() -> None:
@@ -197,3 +230,51 @@ def launch(serial, parallel, work: int, *args):
             finally:
                 lock.release()
     return serial(*args)
+
+
+def launch_or_numpy(serial, parallel, work: int, args, numpy_path):
+    """Run a kernel, or its numpy path where a compile cannot pay off.
+
+    Outside a fit's passes: the numpy path below :data:`NUMPY_MAX_ELEMENTS`
+    work items, else :func:`launch` (compiling on the first call).  Inside
+    :func:`serial_kernels` (the passes of a fit on worker threads): the
+    serial kernel once it is compiled, else the numpy path; after
+    :data:`COMPILE_AFTER_ELEMENTS` work items on numpy the kernel is compiled
+    in a background thread (loaded, when the disk cache holds it), so a pass
+    never waits for a compile.
+
+    Parameters
+    ----------
+    serial, parallel : numba dispatchers
+        As for :func:`launch`.
+    work : int
+        Number of work items (rows times classes).
+    args : tuple
+        The kernel's arguments.
+    numpy_path : callable
+        Computes the same result without numba (called without arguments).
+
+    Returns
+    -------
+    result
+        Whatever the path taken returns.
+    """
+    if not getattr(_thread_state, "serial", False):
+        if work < NUMPY_MAX_ELEMENTS:
+            return numpy_path()
+        return launch(serial, parallel, work, *args)
+    if getattr(serial, "signatures", True):
+        return serial(*args)
+    _count_numpy_work(serial, work, args)
+    return numpy_path()
+
+
+def _count_numpy_work(kernel, work, args):
+    with _compile_lock:
+        done = _numpy_work.get(kernel, 0)
+        _numpy_work[kernel] = done + work
+        if done >= COMPILE_AFTER_ELEMENTS or done + work < COMPILE_AFTER_ELEMENTS:
+            return
+    signature = tuple(numba.typeof(arg) for arg in args)
+    # A daemon thread: a process that ends meanwhile does not wait for it.
+    threading.Thread(target=kernel.compile, args=(signature,), daemon=True).start()

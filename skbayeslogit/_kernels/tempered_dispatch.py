@@ -20,7 +20,8 @@ from __future__ import annotations
 import numba
 import numpy as np
 
-from .config import launch
+from . import tempered_numpy
+from .config import NUMPY_MAX_ELEMENTS, in_serial_kernels, launch_or_numpy
 from .tempered_blocks import BLOCK, normalise_blocked_parallel, normalise_blocked_serial
 from .tempered_loss import (
     binary_parallel,
@@ -35,14 +36,30 @@ from .tempered_rows import normalise_general_parallel, normalise_general_serial
 __all__ = ["normalise", "multiclass_loss", "binary_indexed", "binary_loss"]
 
 
-def _kernel_family(k, t):
+#: Work items (rows x classes) from which a call outside a fit's passes runs
+#: the blocked family.  Below, the general family's numpy path runs (see
+#: config.launch_or_numpy), which gives the general kernels' results bitwise.
+BLOCKED_MIN_ELEMENTS = NUMPY_MAX_ELEMENTS
+
+
+def _kernel_family(k, t, work=BLOCKED_MIN_ELEMENTS):
     """'blocked' or 'general': the kernel family for K classes at temperature t.
 
     The block solver covers the integer-power temperatures with K >= 2; the
-    others need log1p/exp per element, which do not vectorise here.
+    others need log1p/exp per element, which do not vectorise here.  Calls
+    of fewer than :data:`BLOCKED_MIN_ELEMENTS` work items take the general
+    family.
     """
-    blocked = k >= 2 and t != 1.0 and integer_power.py_func(t) != 0
+    blocked = (
+        work >= BLOCKED_MIN_ELEMENTS and k >= 2 and t != 1.0 and integer_power.py_func(t) != 0
+    )
     return "blocked" if blocked else "general"
+
+
+def _call_work(work):
+    # A fit's passes keep the blocked family whatever their span: they run
+    # the numpy path until the kernel is compiled (config.launch_or_numpy).
+    return BLOCKED_MIN_ELEMENTS if in_serial_kernels() else work
 
 
 def _n_chunks(n):
@@ -67,8 +84,11 @@ def normalise(a, t, p, lam, want_p):
     `p` is written only when `want_p` (otherwise any float64 (1, 1) array).
     """
     n = a.shape[0]
-    kernels = _NORMALISE_KERNELS[_kernel_family(a.shape[1], t)]
-    launch(*kernels, a.size, a, t, p, lam, want_p, 0, n, _n_chunks(n))
+    kernels = _NORMALISE_KERNELS[_kernel_family(a.shape[1], t, _call_work(a.size))]
+    args = (a, t, p, lam, want_p, 0, n, _n_chunks(n))
+    launch_or_numpy(
+        *kernels, a.size, args, lambda: tempered_numpy.normalise(a, t, p, lam, want_p)
+    )
 
 
 def multiclass_loss(a, idx, yprob, use_index, t1, t2, ls, warm, lam, loss, grad):
@@ -80,10 +100,11 @@ def multiclass_loss(a, idx, yprob, use_index, t1, t2, ls, warm, lam, loss, grad)
     as Newton's starting points when `warm` and overwritten.
     """
     n = a.shape[0]
-    kernels = _LOSS_KERNELS[_kernel_family(a.shape[1], t2)]
-    launch(
-        *kernels, a.size, a, idx, yprob, use_index, t1, t2, ls, warm, lam, loss, grad,
-        0, n, _n_chunks(n),
+    kernels = _LOSS_KERNELS[_kernel_family(a.shape[1], t2, _call_work(a.size))]
+    labels = (a, idx, yprob, use_index, t1, t2, ls, warm, lam, loss, grad)
+    launch_or_numpy(
+        *kernels, a.size, (*labels, 0, n, _n_chunks(n)),
+        lambda: tempered_numpy.multiclass_loss(*labels),
     )  # fmt: skip
 
 
@@ -101,16 +122,21 @@ def binary_loss(a, y, t1, t2, ls, loss, grad):
     (no pairs are packed); others the scalar binary rows.
     """
     n = a.shape[0]
+
+    def numpy_path():
+        tempered_numpy.binary_loss(a, y, t1, t2, ls, loss, grad)
+
     if not binary_indexed(t2):
-        launch(binary_serial, binary_parallel, 2 * n, a, y, t1, t2, ls, loss, grad)
+        args = (a, y, t1, t2, ls, loss, grad)
+        launch_or_numpy(binary_serial, binary_parallel, 2 * n, args, numpy_path)
         return
     use_index = y.dtype == np.int64
     if use_index:
         idx, yprob = y, np.empty((1, 1))
     else:
         idx, yprob = np.zeros(1, dtype=np.int64), y.reshape(n, 1)
-    launch(
-        loss_blocked_serial, loss_blocked_parallel, 2 * n,
+    args = (
         a.reshape(n, 1), idx, yprob, use_index, t1, t2, ls, False, np.empty(n), loss,
         grad.reshape(n, 1), 0, n, _n_chunks(n),
     )  # fmt: skip
+    launch_or_numpy(loss_blocked_serial, loss_blocked_parallel, 2 * n, args, numpy_path)
