@@ -147,6 +147,7 @@ def test_one_compiled_signature_per_kernel(monkeypatch):
     import pandas as pd
 
     from skbayeslogit import LaplaceLogisticClassifier
+    from skbayeslogit._kernels import config as _kernel_config
     from skbayeslogit._kernels import logistic as lk
     from skbayeslogit._kernels import moments as mk
     from skbayeslogit._kernels import softmax as sk
@@ -156,6 +157,8 @@ def test_one_compiled_signature_per_kernel(monkeypatch):
     # that its compiled version does.
     monkeypatch.setattr(_threads, "_SERIAL_WORK", 0.0)
     monkeypatch.setattr(_design, "_BLOCK_BYTES", 1 << 14)
+    # Every call to the kernels, not their numpy paths for small calls.
+    monkeypatch.setattr(_kernel_config, "NUMPY_MAX_ELEMENTS", 0)
     n = 12_000
     rng = np.random.default_rng(4)
     X = rng.normal(size=(n, 3))

@@ -43,10 +43,12 @@ Flags
 Compile cost
     A kernel that runs only on a few rows costs more to compile than it
     saves, so the tempered kernels have a numpy path of the same algorithm
-    (:func:`launch_or_numpy`): calls below :data:`NUMPY_MAX_ELEMENTS` work
-    items take it, and a fit's passes (inside :func:`serial_kernels`) take it
-    until the kernel is compiled, which starts in a background thread
-    once they have spent :data:`COMPILE_AFTER_ELEMENTS` work items on numpy.
+    (:func:`launch_or_numpy`, :func:`numpy_first`): calls below
+    :data:`NUMPY_MAX_ELEMENTS` work items take it, whatever the process
+    compiled before, and a fit's larger passes (inside :func:`serial_kernels`)
+    take it until the tempered kernel is compiled, which starts in a
+    background thread once they have spent :data:`COMPILE_AFTER_ELEMENTS`
+    work items on numpy.
 """
 
 from __future__ import annotations
@@ -62,6 +64,7 @@ __all__ = [
     "lazy_kernel",
     "launch",
     "launch_or_numpy",
+    "numpy_first",
     "serial_kernels",
     "in_serial_kernels",
     "PARALLEL_MIN_ELEMENTS",
@@ -74,9 +77,9 @@ __all__ = [
 #: more than the rows.
 PARALLEL_MIN_ELEMENTS = 1 << 15
 
-#: Calls with fewer work items outside a fit's passes run a kernel's numpy
-#: path: its compile cannot pay off on so few rows.
-NUMPY_MAX_ELEMENTS = 1 << 14
+#: Calls with fewer work items (rows x classes or columns) run a kernel's
+#: numpy path: its compile cannot pay off on so few rows.
+NUMPY_MAX_ELEMENTS = 1 << 12
 
 #: Work items a process's passes may run on the numpy path of a kernel not yet
 #: compiled before its compile starts (in a background thread).
@@ -235,10 +238,13 @@ def launch(serial, parallel, work: int, *args):
 def launch_or_numpy(serial, parallel, work: int, args, numpy_path):
     """Run a kernel, or its numpy path where a compile cannot pay off.
 
-    Outside a fit's passes: the numpy path below :data:`NUMPY_MAX_ELEMENTS`
-    work items, else :func:`launch` (compiling on the first call).  Inside
-    :func:`serial_kernels` (the passes of a fit on worker threads): the
-    serial kernel once it is compiled, else the numpy path; after
+    Below :data:`NUMPY_MAX_ELEMENTS` work items: the numpy path.  Larger
+    calls outside a fit's passes: :func:`launch` (compiling on the first
+    call).  Larger calls inside :func:`serial_kernels` (the passes of a fit
+    on worker threads): the serial kernel once it is compiled, else the
+    numpy path (the two agree to rounding, so a large fit that switches
+    over while it runs can differ in the last bits from one that does
+    not); after
     :data:`COMPILE_AFTER_ELEMENTS` work items on numpy the kernel is compiled
     in a background thread (loaded, when the disk cache holds it), so a pass
     never waits for a compile.
@@ -259,9 +265,9 @@ def launch_or_numpy(serial, parallel, work: int, args, numpy_path):
     result
         Whatever the path taken returns.
     """
+    if numpy_first(work):
+        return numpy_path()
     if not getattr(_thread_state, "serial", False):
-        if work < NUMPY_MAX_ELEMENTS:
-            return numpy_path()
         return launch(serial, parallel, work, *args)
     if getattr(serial, "signatures", True):
         return serial(*args)
@@ -278,3 +284,21 @@ def _count_numpy_work(kernel, work, args):
     signature = tuple(numba.typeof(arg) for arg in args)
     # A daemon thread: a process that ends meanwhile does not wait for it.
     threading.Thread(target=kernel.compile, args=(signature,), daemon=True).start()
+
+
+def numpy_first(work: int) -> bool:
+    """Whether a call of `work` items takes a kernel's numpy path.
+
+    By size only (below :data:`NUMPY_MAX_ELEMENTS`), never by what the process
+    compiled before, so that a call gives the same bits in every process.
+
+    Parameters
+    ----------
+    work : int
+        Work items of the call (rows, or rows times columns).
+
+    Returns
+    -------
+    bool
+    """
+    return work < NUMPY_MAX_ELEMENTS

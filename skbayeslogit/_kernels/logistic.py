@@ -31,7 +31,7 @@ ones also match, so neither makes a second compile.
 
 import numpy as np
 
-from .config import lazy_kernel
+from .config import lazy_kernel, numpy_first
 
 _VEC = "float64[::1]"
 _SIGNATURE = f"float64({_VEC}, {_VEC}, {_VEC}, {_VEC}, {_VEC}, boolean)"
@@ -101,6 +101,23 @@ def _span_signature():
 
 
 _pointwise_kernel = lazy_kernel(_pointwise, lambda: _SIGNATURE)
+
+
+def _pointwise_numpy(y, eta, w, g, h, derivs):
+    # _pointwise in numpy, for calls too small to pay for its compile.
+    total = float(np.dot(w, (np.maximum(eta, 0.0) - y * eta) + h))
+    if derivs:
+        e = g
+        r = 1.0 / (1.0 + e)
+        p = np.where(eta >= 0.0, r, e * r)
+        h[:] = w * (e * r * r)
+        g[:] = w * (p - y)
+    return total
+
+
+def _pointwise_call(y, eta, w, g, h, derivs):
+    kernel = _pointwise_numpy if numpy_first(len(eta)) else _pointwise_kernel
+    return kernel(y, eta, w, g, h, derivs)
 _span_kernel = lazy_kernel(_gradient_span, _span_signature)
 
 
@@ -130,7 +147,7 @@ def logistic_loss(y, eta, w):
         stop = min(start + _LOSS_CHUNK, n)
         m = stop - start
         _fill_exp_log1p(eta[start:stop], e[:m], l1p[:m])
-        total += _pointwise_kernel(
+        total += _pointwise_call(
             y[start:stop], eta[start:stop], w[start:stop], e[:m], l1p[:m], False
         )
     return float(total)
@@ -146,7 +163,7 @@ def logistic_derivatives(y, eta, w):
     g = np.empty_like(eta)
     h = np.empty_like(eta)
     _fill_exp_log1p(eta, g, h)
-    loss = _pointwise_kernel(y, eta, w, g, h, True)
+    loss = _pointwise_call(y, eta, w, g, h, True)
     return float(loss), g, h
 
 

@@ -26,7 +26,7 @@ Tried without gain: two terms per sweep sharing the loads of the block.
 
 import numpy as np
 
-from .config import lazy_kernel
+from .config import lazy_kernel, numpy_first
 
 _BLOCK_ROWS = 256  # rows per transposed block: four feature rows and the sums stay in L1
 # The transposed block's rows are 8 doubles longer than the block: at a
@@ -144,6 +144,8 @@ class BinaryMomentPlan:
         Returns True when some entry of X is NaN or has magnitude above
         ``limit`` (the outputs are then not to be used).
         """
+        if numpy_first(X.shape[0]):
+            return self._run_numpy(X, mean, var, limit)
         block = _BLOCK_ROWS
         xt = np.empty((self.d, block + _PAD))
         acc = np.empty(block)
@@ -152,3 +154,12 @@ class BinaryMomentPlan:
                 X, self.coef_t, self.lengths, self.shift, float(limit), mean, var, xt, acc
             )
         )
+
+    def _run_numpy(self, X, mean, var, limit):
+        # The kernel's sums by BLAS, for calls too small to pay for its compile.
+        # Like the kernel, NaN or infinite rows give unused outputs, silently.
+        with np.errstate(all="ignore"):
+            mean[:] = np.dot(X, self.coef_t[-1]) + self.shift[-1]
+            lin = np.dot(X, self.coef_t[:-1].T) + self.shift[:-1]
+            var[:] = np.einsum("ij,ij->i", lin, lin)
+        return not bool(np.all(np.abs(X) <= limit))

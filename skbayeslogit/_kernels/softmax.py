@@ -36,7 +36,7 @@ All run in the design's worker threads (``nogil``) on the rows of one task.
 
 import numpy as np
 
-from .config import jit
+from .config import jit, numpy_first
 
 
 @jit()
@@ -215,8 +215,31 @@ def softmax_rows(y, eta, w, want_h):
     g = np.empty((n, K))
     # One signature whether or not h is wanted: an empty h stands in.
     h = np.empty((n, K * (K + 1) // 2) if want_h else (0, 0))
-    loss = _softmax_rows(y, eta, w, g, h, bool(want_h))
+    if numpy_first(eta.size):
+        loss = _softmax_rows_numpy(y, eta, w, g, h, bool(want_h))
+    else:
+        loss = _softmax_rows(y, eta, w, g, h, bool(want_h))
     return float(loss), g, (h if want_h else None)
+
+
+def _softmax_rows_numpy(y, eta, w, g, h, want_h):
+    # _softmax_rows in numpy, for calls too small to pay for its compile.
+    n, K = eta.shape
+    rows = np.arange(n)
+    z = eta - eta.max(axis=1)[:, None]
+    e = np.exp(z)
+    s = e.sum(axis=1)
+    total = float(np.dot(w, np.log(s) - z[rows, y]))
+    p = e * (1.0 / s)[:, None]
+    wp = w[:, None] * p
+    g[:] = wp
+    g[rows, y] -= w
+    if want_h:
+        first, second = np.triu_indices(K)
+        h[:] = -(wp[:, first] * p[:, second])
+        diagonal = first == second
+        h[:, diagonal] = wp * (1.0 - p)
+    return total
 
 
 def pack_outer(x_t, m, out):
@@ -231,4 +254,9 @@ def pack_outer(x_t, m, out):
     out : ndarray of shape (dx (dx + 1) / 2, sub), float64, C order
         Written in place; pairs in ``np.triu_indices(dx)`` order.
     """
+    dx = x_t.shape[0]
+    if numpy_first(dx * m):
+        first, second = np.triu_indices(dx)
+        np.multiply(x_t[first, :m], x_t[second, :m], out=out[:, :m])
+        return
     _pack_outer(x_t, np.int64(m), out)

@@ -21,7 +21,7 @@ import numba
 import numpy as np
 
 from . import tempered_numpy
-from .config import NUMPY_MAX_ELEMENTS, in_serial_kernels, launch_or_numpy
+from .config import in_serial_kernels, launch_or_numpy
 from .tempered_blocks import BLOCK, normalise_blocked_parallel, normalise_blocked_serial
 from .tempered_loss import (
     binary_parallel,
@@ -37,9 +37,10 @@ __all__ = ["normalise", "multiclass_loss", "binary_indexed", "binary_loss"]
 
 
 #: Work items (rows x classes) from which a call outside a fit's passes runs
-#: the blocked family.  Below, the general family's numpy path runs (see
-#: config.launch_or_numpy), which gives the general kernels' results bitwise.
-BLOCKED_MIN_ELEMENTS = NUMPY_MAX_ELEMENTS
+#: the blocked family; below, the general family (whose compile is several
+#: times cheaper; its normalisers are bitwise the blocked ones), or its numpy
+#: path below config.NUMPY_MAX_ELEMENTS.
+BLOCKED_MIN_ELEMENTS = 1 << 14
 
 
 def _kernel_family(k, t, work=BLOCKED_MIN_ELEMENTS):
