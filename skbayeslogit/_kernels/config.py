@@ -55,12 +55,13 @@ from __future__ import annotations
 
 import contextlib
 import os
+import sys
 import threading
-
-import numba
 
 __all__ = [
     "jit",
+    "LazyDispatcher",
+    "resolve_globals",
     "lazy_kernel",
     "launch",
     "launch_or_numpy",
@@ -117,6 +118,9 @@ def _reset_after_fork() -> None:
     global _launch_lock, _parallel_forbidden
     # A lock held by another thread at fork time would stay held for ever.
     _launch_lock = threading.Lock()
+    numba = sys.modules.get("numba")
+    if numba is None:
+        return
     try:
         layer = numba.threading_layer()
     except ValueError:
@@ -141,19 +145,67 @@ def jit(parallel: bool = False):
     Returns
     -------
     decorator : callable
-        Maps a Python function to a numba dispatcher.  The dispatcher caches
-        compiled code on disk when a writable cache directory exists and
-        compiles in memory otherwise.
+        Maps a Python function to a stand-in that imports numba and makes
+        the numba dispatcher on first use (a call or any attribute), so that
+        importing a kernel module does not import numba.  The dispatcher
+        caches compiled code on disk when a writable cache directory exists
+        and compiles in memory otherwise.
     """
 
     def decorate(func):
-        return _njit(func, parallel=parallel)
+        return LazyDispatcher(func, parallel)
 
     return decorate
 
 
+_dispatcher_lock = threading.RLock()
+
+
+class LazyDispatcher:
+    """A numba dispatcher made on first use; see :func:`jit`.
+
+    Making it also replaces every stand-in among the kernel module's globals
+    by its dispatcher, so that kernels calling kernels compile (numba reads
+    the callee from the caller's globals).
+    """
+
+    def __init__(self, func, parallel):
+        self.py_func = func
+        self.__name__ = func.__name__
+        self.__qualname__ = func.__qualname__
+        self.__doc__ = func.__doc__
+        self._parallel = parallel
+        self._dispatcher = None
+
+    def dispatcher(self):
+        """The numba dispatcher (made, and numba imported, on the first call)."""
+        if self._dispatcher is None:
+            with _dispatcher_lock:
+                if self._dispatcher is None:
+                    self._dispatcher = _njit(self.py_func, parallel=self._parallel)
+                    resolve_globals(self.py_func)
+        return self._dispatcher
+
+    def __call__(self, *args):
+        return self.dispatcher()(*args)
+
+    def __getattr__(self, name):
+        return getattr(self.dispatcher(), name)
+
+
+def resolve_globals(func):
+    """Replace the :class:`LazyDispatcher` stand-ins among `func`'s globals by dispatchers."""
+    namespace = func.__globals__
+    with _dispatcher_lock:
+        for name, value in list(namespace.items()):
+            if isinstance(value, LazyDispatcher):
+                namespace[name] = value.dispatcher()
+
+
 def _njit(func, signature=None, parallel=False):
     """numba.njit(func), cached on disk when a cache directory is writable."""
+    import numba
+
     args = () if signature is None else (signature,)
     try:
         return numba.njit(*args, cache=True, parallel=parallel, nogil=True)(func)
@@ -194,6 +246,7 @@ def lazy_kernel(func, signature):
         if not compiled:
             with lock:
                 if not compiled:
+                    resolve_globals(func)
                     compiled.append(_njit(func, signature()))
         return compiled[0](*args)
 
@@ -220,6 +273,8 @@ def launch(serial, parallel, work: int, *args):
     result
         Whatever the kernel returns.
     """
+    import numba
+
     if (
         work >= PARALLEL_MIN_ELEMENTS
         and not _parallel_forbidden
@@ -235,7 +290,7 @@ def launch(serial, parallel, work: int, *args):
     return serial(*args)
 
 
-def launch_or_numpy(serial, parallel, work: int, args, numpy_path):
+def launch_or_numpy(kernels, work: int, args, numpy_path):
     """Run a kernel, or its numpy path where a compile cannot pay off.
 
     Below :data:`NUMPY_MAX_ELEMENTS` work items: the numpy path.  Larger
@@ -244,19 +299,20 @@ def launch_or_numpy(serial, parallel, work: int, args, numpy_path):
     on worker threads): the serial kernel once it is compiled, else the
     numpy path (the two agree to rounding, so a large fit that switches
     over while it runs can differ in the last bits from one that does
-    not); after
-    :data:`COMPILE_AFTER_ELEMENTS` work items on numpy the kernel is compiled
-    in a background thread (loaded, when the disk cache holds it), so a pass
-    never waits for a compile.
+    not); after :data:`COMPILE_AFTER_ELEMENTS` work items on numpy the
+    kernel is compiled in a background thread (loaded, when the disk cache
+    holds it), so a pass never waits for a compile.
 
     Parameters
     ----------
-    serial, parallel : numba dispatchers
-        As for :func:`launch`.
+    kernels : callable
+        Returns the (serial, parallel) numba dispatchers, as for
+        :func:`launch`; called only when a kernel may run (their modules
+        import numba).
     work : int
         Number of work items (rows times classes).
-    args : tuple
-        The kernel's arguments.
+    args : callable
+        Returns the kernel's arguments.
     numpy_path : callable
         Computes the same result without numba (called without arguments).
 
@@ -267,10 +323,11 @@ def launch_or_numpy(serial, parallel, work: int, args, numpy_path):
     """
     if numpy_first(work):
         return numpy_path()
+    serial, parallel = kernels()
     if not getattr(_thread_state, "serial", False):
-        return launch(serial, parallel, work, *args)
+        return launch(serial, parallel, work, *args())
     if getattr(serial, "signatures", True):
-        return serial(*args)
+        return serial(*args())
     _count_numpy_work(serial, work, args)
     return numpy_path()
 
@@ -281,7 +338,9 @@ def _count_numpy_work(kernel, work, args):
         _numpy_work[kernel] = done + work
         if done >= COMPILE_AFTER_ELEMENTS or done + work < COMPILE_AFTER_ELEMENTS:
             return
-    signature = tuple(numba.typeof(arg) for arg in args)
+    import numba
+
+    signature = tuple(numba.typeof(arg) for arg in args())
     # A daemon thread: a process that ends meanwhile does not wait for it.
     threading.Thread(target=kernel.compile, args=(signature,), daemon=True).start()
 

@@ -255,7 +255,7 @@ def pack_outer(x_t, m, out):
         Written in place; pairs in ``np.triu_indices(dx)`` order.
     """
     dx = x_t.shape[0]
-    if numpy_first(dx * m):
+    if numpy_first(m):
         first, second = np.triu_indices(dx)
         np.multiply(x_t[first, :m], x_t[second, :m], out=out[:, :m])
         return

@@ -27,10 +27,8 @@ from .tempered_math import (
     row_max,
     upper_bracket,
 )
+from .tempered_params import FIXED_POINT_MAXITER, FIXED_POINT_SPARE, NEWTON_MAXITER
 from .tempered_rows import (
-    FIXED_POINT_MAXITER,
-    FIXED_POINT_SPARE,
-    NEWTON_MAXITER,
     fill_probabilities,
     newton_step,
     newton_step_plain,

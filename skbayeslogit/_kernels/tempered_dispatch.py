@@ -17,21 +17,13 @@ checks and converts user input, the fit converts its labels once.
 
 from __future__ import annotations
 
-import numba
+import importlib
+
 import numpy as np
 
 from . import tempered_numpy
 from .config import in_serial_kernels, launch_or_numpy
-from .tempered_blocks import BLOCK, normalise_blocked_parallel, normalise_blocked_serial
-from .tempered_loss import (
-    binary_parallel,
-    binary_serial,
-    loss_general_parallel,
-    loss_general_serial,
-)
-from .tempered_loss_blocks import loss_blocked_parallel, loss_blocked_serial
-from .tempered_math import integer_power
-from .tempered_rows import normalise_general_parallel, normalise_general_serial
+from .tempered_params import integer_power
 
 __all__ = ["normalise", "multiclass_loss", "binary_indexed", "binary_loss"]
 
@@ -52,7 +44,7 @@ def _kernel_family(k, t, work=BLOCKED_MIN_ELEMENTS):
     family.
     """
     blocked = (
-        work >= BLOCKED_MIN_ELEMENTS and k >= 2 and t != 1.0 and integer_power.py_func(t) != 0
+        work >= BLOCKED_MIN_ELEMENTS and k >= 2 and t != 1.0 and integer_power(t) != 0
     )
     return "blocked" if blocked else "general"
 
@@ -65,18 +57,45 @@ def _call_work(work):
 
 def _n_chunks(n):
     # Enough chunks to balance the threads, each at least one block long.
+    import numba
+
+    from .tempered_blocks import BLOCK
+
     return max(1, min(n // BLOCK, 8 * numba.get_num_threads()))
 
 
-# Looked up at each call (tests swap entries to watch the launches).
-_NORMALISE_KERNELS = {
-    "general": (normalise_general_serial, normalise_general_parallel),
-    "blocked": (normalise_blocked_serial, normalise_blocked_parallel),
-}
-_LOSS_KERNELS = {
-    "general": (loss_general_serial, loss_general_parallel),
-    "blocked": (loss_blocked_serial, loss_blocked_parallel),
-}
+class _KernelTable(dict):
+    """Family -> (serial, parallel) kernels, imported on first look-up.
+
+    The kernel modules import numba, which the numpy path does not need.
+    Looked up at each call (tests swap entries to watch the launches).
+    """
+
+    def __init__(self, modules):
+        super().__init__()
+        self._modules = modules
+
+    def __missing__(self, family):
+        module, serial, parallel = self._modules[family]
+        loaded = importlib.import_module(module, __package__)
+        kernels = (getattr(loaded, serial), getattr(loaded, parallel))
+        self[family] = kernels
+        return kernels
+
+
+_NORMALISE_KERNELS = _KernelTable(
+    {
+        "general": (".tempered_rows", "normalise_general_serial", "normalise_general_parallel"),
+        "blocked": (".tempered_blocks", "normalise_blocked_serial", "normalise_blocked_parallel"),
+    }
+)
+_LOSS_KERNELS = _KernelTable(
+    {
+        "general": (".tempered_loss", "loss_general_serial", "loss_general_parallel"),
+        "blocked": (".tempered_loss_blocks", "loss_blocked_serial", "loss_blocked_parallel"),
+        "binary": (".tempered_loss", "binary_serial", "binary_parallel"),
+    }
+)
 
 
 def normalise(a, t, p, lam, want_p):
@@ -85,10 +104,12 @@ def normalise(a, t, p, lam, want_p):
     `p` is written only when `want_p` (otherwise any float64 (1, 1) array).
     """
     n = a.shape[0]
-    kernels = _NORMALISE_KERNELS[_kernel_family(a.shape[1], t, _call_work(a.size))]
-    args = (a, t, p, lam, want_p, 0, n, _n_chunks(n))
+    family = _kernel_family(a.shape[1], t, _call_work(a.size))
     launch_or_numpy(
-        *kernels, a.size, args, lambda: tempered_numpy.normalise(a, t, p, lam, want_p)
+        lambda: _NORMALISE_KERNELS[family],
+        a.size,
+        lambda: (a, t, p, lam, want_p, 0, n, _n_chunks(n)),
+        lambda: tempered_numpy.normalise(a, t, p, lam, want_p),
     )
 
 
@@ -101,10 +122,10 @@ def multiclass_loss(a, idx, yprob, use_index, t1, t2, ls, warm, lam, loss, grad)
     as Newton's starting points when `warm` and overwritten.
     """
     n = a.shape[0]
-    kernels = _LOSS_KERNELS[_kernel_family(a.shape[1], t2, _call_work(a.size))]
+    family = _kernel_family(a.shape[1], t2, _call_work(a.size))
     labels = (a, idx, yprob, use_index, t1, t2, ls, warm, lam, loss, grad)
     launch_or_numpy(
-        *kernels, a.size, (*labels, 0, n, _n_chunks(n)),
+        lambda: _LOSS_KERNELS[family], a.size, lambda: (*labels, 0, n, _n_chunks(n)),
         lambda: tempered_numpy.multiclass_loss(*labels),
     )  # fmt: skip
 
@@ -129,15 +150,17 @@ def binary_loss(a, y, t1, t2, ls, loss, grad):
 
     if not binary_indexed(t2):
         args = (a, y, t1, t2, ls, loss, grad)
-        launch_or_numpy(binary_serial, binary_parallel, 2 * n, args, numpy_path)
+        launch_or_numpy(lambda: _LOSS_KERNELS["binary"], 2 * n, lambda: args, numpy_path)
         return
     use_index = y.dtype == np.int64
     if use_index:
         idx, yprob = y, np.empty((1, 1))
     else:
         idx, yprob = np.zeros(1, dtype=np.int64), y.reshape(n, 1)
-    args = (
-        a.reshape(n, 1), idx, yprob, use_index, t1, t2, ls, False, np.empty(n), loss,
-        grad.reshape(n, 1), 0, n, _n_chunks(n),
-    )  # fmt: skip
-    launch_or_numpy(loss_blocked_serial, loss_blocked_parallel, 2 * n, args, numpy_path)
+    def args():
+        return (
+            a.reshape(n, 1), idx, yprob, use_index, t1, t2, ls, False, np.empty(n), loss,
+            grad.reshape(n, 1), 0, n, _n_chunks(n),
+        )  # fmt: skip
+
+    launch_or_numpy(lambda: _LOSS_KERNELS["blocked"], 2 * n, args, numpy_path)

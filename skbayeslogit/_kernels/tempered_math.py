@@ -39,10 +39,9 @@ from __future__ import annotations
 import math
 
 import numba
-import numpy as np
 
-EPS = float(np.finfo(np.float64).eps)
-HUGE = float(np.finfo(np.float64).max)
+from . import tempered_params
+from .tempered_params import EPS, HUGE
 
 
 @numba.njit(nogil=True)
@@ -58,19 +57,8 @@ def upper_bracket(k, t):
     return hi
 
 
-@numba.njit(nogil=True)
-def integer_power(t):
-    # n when 1 / (1 - t) is the integer n (to rounding), 1 <= |n| <= 16: then
-    # exp_t is a polynomial (t < 1) or reciprocal polynomial (t > 1) and
-    # repeated multiplication replaces log1p + exp, with a relative error of
-    # at most |n| eps / 2 (the rounding of 1 + z, amplified n times).  0: no.
-    if t == 1.0:
-        return 0
-    r = 1.0 / (1.0 - t)
-    n = round(r)
-    if n != 0 and abs(n) <= 16 and abs(r - n) <= 8.0 * EPS * abs(r):
-        return int(n)
-    return 0
+# Compiled into the kernels; the numpy path calls the Python function.
+integer_power = numba.njit(nogil=True)(tempered_params.integer_power)
 
 
 @numba.njit(nogil=True)

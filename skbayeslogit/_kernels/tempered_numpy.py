@@ -22,20 +22,24 @@ import math
 
 import numpy as np
 
-from .tempered_math import integer_power
-from .tempered_rows import FIXED_POINT_MAXITER, FIXED_POINT_SPARE, NEWTON_MAXITER
+from .tempered_params import (
+    EPS,
+    FIXED_POINT_MAXITER,
+    FIXED_POINT_SPARE,
+    HUGE,
+    NEWTON_MAXITER,
+    integer_power,
+)
 
 __all__ = ["normalise", "multiclass_loss", "binary_loss", "shifted_normalisers"]
 
-_EPS = float(np.finfo(np.float64).eps)
-_HUGE = float(np.finfo(np.float64).max)
 
 
 def _upper_bracket(k, t):
     # -log_t(1/K), as tempered_math.upper_bracket.
     if k <= 1:
         return 0.0
-    return min(math.expm1((t - 1.0) * math.log(k)) / (t - 1.0), _HUGE)
+    return min(math.expm1((t - 1.0) * math.log(k)) / (t - 1.0), HUGE)
 
 
 def _column_sums(x, first=0.0):
@@ -65,7 +69,7 @@ def _terms(dl, t):
     z = omt * dl
     inside = z > -1.0
     zc = np.where(inside, z, 0.0)
-    n = integer_power.py_func(t)
+    n = integer_power(t)
     x = 1.0 + zc
     if n > 0:
         pt = _ipow(x, n - 1)
@@ -92,7 +96,7 @@ def _newton_step(lam, f, fp, t, plain):
 
 def _texp(z, t):
     # tempered_math.texp: (1 + z)**(1 / (1 - t)), z > -1.
-    n = integer_power.py_func(t)
+    n = integer_power(t)
     if n > 0:
         return _ipow(1.0 + z, n)
     if n < 0:
@@ -115,7 +119,7 @@ def _fixed_point(d, t):
         step = new - lam[rows]
         lam[rows] = new
         s[rows] = 1.0 + tm1 * new
-        target = 4.0 * _EPS * new
+        target = 4.0 * EPS * new
         rate = step / prev[rows]
         spare = np.log(target / step) / np.log(np.where(rate > 0.0, rate, 0.5))
         done = (step <= target) | (rate >= 1.0) | ((rate > 0.0) & (spare > FIXED_POINT_SPARE))
@@ -146,7 +150,7 @@ def shifted_normalisers(d, t, start=None):
     else:
         lam = np.zeros(n)
     lo, hi = np.zeros(n), np.full(n, hi_value)
-    tol = 4.0 * _EPS * (math.sqrt(k) + 1.0)
+    tol = 4.0 * EPS * (math.sqrt(k) + 1.0)
     rows = np.arange(n)
     for _ in range(NEWTON_MAXITER):
         if rows.size == 0:
@@ -161,7 +165,7 @@ def shifted_normalisers(d, t, start=None):
         lo_r = np.where(right, old, lo[rows])
         hi_r = np.where(right, hi[rows], old)
         new = np.where((new > lo_r) & (new < hi_r), new, lo_r + 0.5 * (hi_r - lo_r))
-        stop = (np.abs(new - old) <= 2.0 * _EPS * np.abs(old)) | (hi_r - lo_r <= 4.0 * _EPS * hi_r)
+        stop = (np.abs(new - old) <= 2.0 * EPS * np.abs(old)) | (hi_r - lo_r <= 4.0 * EPS * hi_r)
         moving = ~solved
         lam[rows[moving]] = new[moving]
         lo[rows], hi[rows] = lo_r, hi_r

@@ -46,6 +46,7 @@ import numba
 import numpy as np
 
 from .config import jit
+from .tempered_params import FIXED_POINT_MAXITER, FIXED_POINT_SPARE, NEWTON_MAXITER
 from .tempered_math import (
     EPS,
     chunk_bounds,
@@ -56,12 +57,6 @@ from .tempered_math import (
     upper_bracket,
 )
 
-# Iteration limits of the normaliser's solvers (here and in tempered_blocks).
-NEWTON_MAXITER = 200
-FIXED_POINT_MAXITER = 50
-# The fixed point hands over to Newton once its rate predicts more than this
-# many further steps.
-FIXED_POINT_SPARE = 3.0
 
 
 @numba.njit(nogil=True)
