@@ -20,16 +20,30 @@ repeats):
   Reference: scikit-learn's first ``LogisticRegression().fit`` in a fresh
   process on the same rows.
 
-No numeric target is set by the issues; the rows report the figures.
+- each model's first fit in its own fresh process (issue 20): Laplace,
+  probit (binary only) and tempered, binary and K = 3, n = 1,000, d = 10,
+  cold then warm cache, in turns with scikit-learn's first fit in a fresh
+  process on the same rows;
+- the tempered first fit at n = 1e5 (binary, d = 10), cold then warm;
+- the demo report (``python -m skbayeslogit report``, the whole process),
+  cold then warm cache.
+
+Targets (issue 20): import <= 1.1x; first fit cold <= 20x and warm <= 5x
+scikit-learn's first fit; tempered at n = 1e5 cold <= 3x warm; demo report
+cold <= 1.5x warm.  Everything runs in one loop of rounds, cold and warm and
+ours and scikit-learn interleaved; medians over the rounds.
 
 Usage: ``python benchmarks/bench_startup.py [--quick]`` (quick: fewer repeats).
 """
 
 import argparse
+import os
 import shutil
 import statistics
+import subprocess
 import sys
 import tempfile
+import time
 from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
@@ -44,22 +58,112 @@ import {module}  # noqa: F401
 out = time.perf_counter() - t0
 """
 
-_FIRST_FIT = """
+_ONE_FIT = """
 import time, warnings
 import numpy as np
-import skbayeslogit, sklearn.linear_model
-from skbayeslogit import LaplaceLogisticClassifier, TemperedLogisticClassifier
+import {module} as lib
 warnings.simplefilter('ignore')
 rng = np.random.default_rng(0)
-X = rng.standard_normal((1000, 10)); y = (X[:, 0] + rng.standard_normal(1000) > 0).astype(int)
-out = {}
-for name, make in (('laplace', lambda: LaplaceLogisticClassifier(prior_scale=1.0)),
-                   ('tempered', lambda: TemperedLogisticClassifier()),
-                   ('sklearn', lambda: sklearn.linear_model.LogisticRegression())):
-    t0 = time.perf_counter(); make().fit(X, y); first = time.perf_counter() - t0
-    t0 = time.perf_counter(); make().fit(X, y); second = time.perf_counter() - t0
-    out[name] = [first, second]
+n, k = {n}, {k}
+X = rng.standard_normal((n, 10))
+y = (X[:, 0] + rng.standard_normal(n) > 0).astype(int) + (k > 2) * (X[:, 1] > 0.5)
+t0 = time.perf_counter(); lib.{cls}({args}).fit(X, y); out = time.perf_counter() - t0
 """
+
+_MODELS = {
+    "laplace": ("skbayeslogit", "LaplaceLogisticClassifier", "prior_scale=1.0"),
+    "probit": ("skbayeslogit", "ProbitClassifier", "prior_scale=1.0"),
+    "tempered": ("skbayeslogit", "TemperedLogisticClassifier", ""),
+    "sklearn": ("sklearn.linear_model", "LogisticRegression", ""),
+}
+# (model, K): probit is binary only.
+_FIT_CASES = [("laplace", 2), ("laplace", 3), ("probit", 2), ("tempered", 2), ("tempered", 3)]
+
+
+def _fit_snippet(model, n, k):
+    module, cls, args = _MODELS[model]
+    return _ONE_FIT.format(module=module, cls=cls, args=args, n=n, k=k) + snippet_json("out")
+
+
+def _report_seconds(env, out):
+    t0 = time.perf_counter()
+    subprocess.run(
+        [sys.executable, "-m", "skbayeslogit", "report", "--out", out, "--quiet"],
+        env=env, check=True, capture_output=True, cwd=str(Path(__file__).resolve().parents[1]),
+    )  # fmt: skip
+    return time.perf_counter() - t0
+
+
+def issue20_round(times, large_n):
+    """One round: every case cold then warm, and scikit-learn's first fits, in turns."""
+    for model, k in _FIT_CASES + [("sklearn", 2), ("sklearn", 3)]:
+        cache = tempfile.mkdtemp(prefix="skbl_numba_cache_")
+        try:
+            env = child_env(NUMBA_CACHE_DIR=cache)
+            for tag in ("cold", "warm"):
+                seconds = run_snippet(_fit_snippet(model, 1000, k), env=env)
+                times.setdefault((model, k, tag), []).append(seconds)
+        finally:
+            shutil.rmtree(cache, ignore_errors=True)
+    cache = tempfile.mkdtemp(prefix="skbl_numba_cache_")
+    try:
+        env = child_env(NUMBA_CACHE_DIR=cache)
+        for tag in ("cold", "warm"):
+            seconds = run_snippet(_fit_snippet("tempered", large_n, 2), env=env)
+            times.setdefault(("tempered-large", 2, tag), []).append(seconds)
+        shutil.rmtree(cache, ignore_errors=True)
+        os.makedirs(cache)
+        for tag in ("cold", "warm"):
+            out = os.path.join(cache, f"report_{tag}")
+            times.setdefault(("report", 0, tag), []).append(_report_seconds(env, out))
+    finally:
+        shutil.rmtree(cache, ignore_errors=True)
+
+
+def issue20_rows(rounds, large_n):
+    times = {}
+    for _ in range(rounds):
+        issue20_round(times, large_n)
+    med = {key: _median(values) for key, values in times.items()}
+    note = f"fresh process each; median of {rounds} rounds"
+    rows = []
+    for model, k in _FIT_CASES:
+        sk = med[("sklearn", k, "cold")]
+        for tag, limit in (("cold", 20.0), ("warm", 5.0)):
+            rows.append(
+                suite_row(
+                    f"startup first {model} fit K={k}, {tag} cache n=1e3 d=10",
+                    med[(model, k, tag)],
+                    "sklearn first fit (fresh process)",
+                    sk,
+                    target=f"<= {limit:g}x",
+                    met=lambda r, lim=limit: r <= lim,
+                    notes=note,
+                )  # fmt: skip
+            )
+    rows.append(
+        suite_row(
+            f"startup first tempered fit, cold cache n={large_n:.0e} d=10",
+            med[("tempered-large", 2, "cold")],
+            "the same, warm cache",
+            med[("tempered-large", 2, "warm")],
+            target="<= 3x",
+            met=lambda r: r <= 3.0,
+            notes=note,
+        )  # fmt: skip
+    )
+    rows.append(
+        suite_row(
+            "startup demo report (whole process), cold cache",
+            med[("report", 0, "cold")],
+            "the same, warm cache",
+            med[("report", 0, "warm")],
+            target="<= 1.5x",
+            met=lambda r: r <= 1.5,
+            notes=note,
+        )  # fmt: skip
+    )
+    return rows
 
 
 def _median(values):
@@ -76,23 +180,8 @@ def import_times(repeats):
     return ours, ref
 
 
-def first_fit_times(repeats):
-    """Per repeat: a cold run in a new cache directory, then a warm run in it."""
-    cold, warm = [], []
-    for _ in range(repeats):
-        cache = tempfile.mkdtemp(prefix="skbl_numba_cache_")
-        try:
-            env = child_env(NUMBA_CACHE_DIR=cache)
-            cold.append(run_snippet(_FIRST_FIT + snippet_json("out"), env=env))
-            warm.append(run_snippet(_FIRST_FIT + snippet_json("out"), env=env))
-        finally:
-            shutil.rmtree(cache, ignore_errors=True)
-    return cold, warm
-
-
 def run(quick=False):
     n_imp = 2 if quick else 9
-    n_fit = 1 if quick else 3
     ours, ref = import_times(n_imp)
     rows = [
         suite_row(
@@ -100,35 +189,15 @@ def run(quick=False):
             _median(ours),
             "import sklearn.linear_model",
             _median(ref),
+            target="<= 1.1x",
+            met=lambda r: r <= 1.1,
             notes=(
                 f"fresh interpreter each, median of {n_imp}; ours range "
-                f"{min(ours):.3f}..{max(ours):.3f}s (includes numpy/scipy/sklearn/numba/pandas)"
+                f"{min(ours):.3f}..{max(ours):.3f}s (includes numpy/scipy/sklearn/pandas)"
             ),
         )
     ]
-    cold, warm = first_fit_times(n_fit)
-    for name in ("laplace", "tempered"):
-        for tag, runs in (("cold", cold), ("warm", warm)):
-            first = _median([r[name][0] for r in runs])
-            second = _median([r[name][1] for r in runs])
-            sk_first = _median([r["sklearn"][0] for r in runs])
-            rows.append(
-                suite_row(
-                    f"startup first {name} fit, {tag} numba cache n=1e3 d=10",
-                    first,
-                    "sklearn first fit",
-                    sk_first,
-                    notes=(
-                        f"second fit in the same process {second:.4f}s; "
-                        f"median of {n_fit} fresh processes"
-                        + (
-                            "; NUMBA_CACHE_DIR a new empty dir"
-                            if tag == "cold"
-                            else "; same cache dir, second process"
-                        )
-                    ),
-                )
-            )
+    rows += issue20_rows(1 if quick else 3, int(2e4) if quick else int(1e5))
     return rows
 
 

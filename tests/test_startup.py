@@ -129,7 +129,7 @@ def test_numpy_loss_is_the_general_kernel_bitwise(t1, t2, use_index):
             else:
                 tn.multiclass_loss(*args)
             out.append((lam, loss, grad))
-        for got, want in zip(out[1], out[0]):
+        for got, want in zip(out[1], out[0], strict=True):
             np.testing.assert_array_equal(got, want)
 
 

@@ -118,6 +118,8 @@ def _pointwise_numpy(y, eta, w, g, h, derivs):
 def _pointwise_call(y, eta, w, g, h, derivs):
     kernel = _pointwise_numpy if numpy_first(len(eta)) else _pointwise_kernel
     return kernel(y, eta, w, g, h, derivs)
+
+
 _span_kernel = lazy_kernel(_gradient_span, _span_signature)
 
 

@@ -43,9 +43,7 @@ def _kernel_family(k, t, work=BLOCKED_MIN_ELEMENTS):
     of fewer than :data:`BLOCKED_MIN_ELEMENTS` work items take the general
     family.
     """
-    blocked = (
-        work >= BLOCKED_MIN_ELEMENTS and k >= 2 and t != 1.0 and integer_power(t) != 0
-    )
+    blocked = work >= BLOCKED_MIN_ELEMENTS and k >= 2 and t != 1.0 and integer_power(t) != 0
     return "blocked" if blocked else "general"
 
 
@@ -157,6 +155,7 @@ def binary_loss(a, y, t1, t2, ls, loss, grad):
         idx, yprob = y, np.empty((1, 1))
     else:
         idx, yprob = np.zeros(1, dtype=np.int64), y.reshape(n, 1)
+
     def args():
         return (
             a.reshape(n, 1), idx, yprob, use_index, t1, t2, ls, False, np.empty(n), loss,

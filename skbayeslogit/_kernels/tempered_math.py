@@ -41,7 +41,7 @@ import math
 import numba
 
 from . import tempered_params
-from .tempered_params import EPS, HUGE
+from .tempered_params import EPS, HUGE  # noqa: F401  (EPS: the kernel modules import it from here)
 
 
 @numba.njit(nogil=True)

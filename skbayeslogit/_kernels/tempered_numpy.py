@@ -34,7 +34,6 @@ from .tempered_params import (
 __all__ = ["normalise", "multiclass_loss", "binary_loss", "shifted_normalisers"]
 
 
-
 def _upper_bracket(k, t):
     # -log_t(1/K), as tempered_math.upper_bracket.
     if k <= 1:

@@ -46,7 +46,6 @@ import numba
 import numpy as np
 
 from .config import jit
-from .tempered_params import FIXED_POINT_MAXITER, FIXED_POINT_SPARE, NEWTON_MAXITER
 from .tempered_math import (
     EPS,
     chunk_bounds,
@@ -56,7 +55,7 @@ from .tempered_math import (
     texp_slope,
     upper_bracket,
 )
-
+from .tempered_params import FIXED_POINT_MAXITER, FIXED_POINT_SPARE, NEWTON_MAXITER
 
 
 @numba.njit(nogil=True)
