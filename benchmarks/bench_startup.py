@@ -141,28 +141,17 @@ def issue20_rows(rounds, large_n):
                     notes=note,
                 )  # fmt: skip
             )
-    rows.append(
-        suite_row(
-            f"startup first tempered fit, cold cache n={large_n:.0e} d=10",
-            med[("tempered-large", 2, "cold")],
-            "the same, warm cache",
-            med[("tempered-large", 2, "warm")],
-            target="<= 3x",
-            met=lambda r: r <= 3.0,
-            notes=note,
-        )  # fmt: skip
-    )
-    rows.append(
-        suite_row(
-            "startup demo report (whole process), cold cache",
-            med[("report", 0, "cold")],
-            "the same, warm cache",
-            med[("report", 0, "warm")],
-            target="<= 1.5x",
-            met=lambda r: r <= 1.5,
-            notes=note,
-        )  # fmt: skip
-    )
+    for key, name, limit in (
+        ("tempered-large", f"first tempered fit n={large_n:.0e} d=10", 3.0),
+        ("report", "demo report (whole process)", 1.5),
+    ):
+        cold, warm = (med[(key, 0 if key == "report" else 2, tag)] for tag in ("cold", "warm"))
+        rows.append(
+            suite_row(
+                f"startup {name}, cold cache", cold, "the same, warm cache", warm,
+                target=f"<= {limit:g}x", met=lambda r, lim=limit: r <= lim, notes=note,
+            )  # fmt: skip
+        )
     return rows
 
 
