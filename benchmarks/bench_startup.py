@@ -148,8 +148,13 @@ def issue20_rows(rounds, large_n):
         cold, warm = (med[(key, 0 if key == "report" else 2, tag)] for tag in ("cold", "warm"))
         rows.append(
             suite_row(
-                f"startup {name}, cold cache", cold, "the same, warm cache", warm,
-                target=f"<= {limit:g}x", met=lambda r, lim=limit: r <= lim, notes=note,
+                f"startup {name}, cold cache",
+                cold,
+                "the same, warm cache",
+                warm,
+                target=f"<= {limit:g}x",
+                met=lambda r, lim=limit: r <= lim,
+                notes=note,
             )  # fmt: skip
         )
     return rows
