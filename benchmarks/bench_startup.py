@@ -126,32 +126,27 @@ def issue20_rows(rounds, large_n):
         issue20_round(times, large_n)
     med = {key: _median(values) for key, values in times.items()}
     note = f"fresh process each; median of {rounds} rounds"
-    rows = []
+    # (workload, ours, reference, reference seconds, limit of the ratio)
+    cases = []
     for model, k in _FIT_CASES:
-        sk = med[("sklearn", k, "cold")]
         for tag, limit in (("cold", 20.0), ("warm", 5.0)):
-            rows.append(
-                suite_row(
-                    f"startup first {model} fit K={k}, {tag} cache n=1e3 d=10",
-                    med[(model, k, tag)],
-                    "sklearn first fit (fresh process)",
-                    sk,
-                    target=f"<= {limit:g}x",
-                    met=lambda r, lim=limit: r <= lim,
-                    notes=note,
-                )  # fmt: skip
-            )
-    for key, name, limit in (
-        ("tempered-large", f"first tempered fit n={large_n:.0e} d=10", 3.0),
-        ("report", "demo report (whole process)", 1.5),
+            workload = f"first {model} fit K={k}, {tag} cache n=1e3 d=10"
+            reference = ("sklearn first fit (fresh process)", med[("sklearn", k, "cold")])
+            cases.append((workload, med[(model, k, tag)], *reference, limit))
+    for key, k, name, limit in (
+        ("tempered-large", 2, f"first tempered fit n={large_n:.0e} d=10", 3.0),
+        ("report", 0, "demo report (whole process)", 1.5),
     ):
-        cold, warm = (med[(key, 0 if key == "report" else 2, tag)] for tag in ("cold", "warm"))
+        reference = ("the same, warm cache", med[(key, k, "warm")])
+        cases.append((f"{name}, cold cache", med[(key, k, "cold")], *reference, limit))
+    rows = []
+    for workload, ours, reference, ref_s, limit in cases:
         rows.append(
             suite_row(
-                f"startup {name}, cold cache",
-                cold,
-                "the same, warm cache",
-                warm,
+                f"startup {workload}",
+                ours,
+                reference,
+                ref_s,
                 target=f"<= {limit:g}x",
                 met=lambda r, lim=limit: r <= lim,
                 notes=note,
