@@ -1,13 +1,20 @@
 """Label-noise-robust linear classifier: the bi-tempered logistic loss."""
 
-import numbers
 import warnings
 
 import numpy as np
 from sklearn.exceptions import ConvergenceWarning
 
 from ._base import LinearClassifierBase
-from ._checks.inputs import check_bool, check_positive_float, check_positive_int, check_scale
+from ._checks.params import (
+    Boolean,
+    Interval,
+    Options,
+    ParameterTable,
+    PositiveFloat,
+    PositiveInt,
+    Scale,
+)
 from ._fit.lbfgs import minimize_scaled
 from ._fit.likelihoods import BinaryLogistic, MultinomialLogistic
 from ._fit.newton import solve_map
@@ -17,15 +24,6 @@ from ._linear.scaling import ColumnScaling
 from ._linear.sources import dask_aware
 from ._linear.threads import passes_own_threads
 from .tempered_functions import tempered_softmax
-
-
-def _check_temperature(name, value, low, high, why):
-    if isinstance(value, bool) or not isinstance(value, numbers.Real):
-        raise TypeError(f"{name} must be a float; got {type(value).__name__}.")
-    value = float(value)
-    if not (np.isfinite(value) and low <= value <= high):
-        raise ValueError(f"{name} must be in [{low:g}, {high:g}] ({why}); got {value!r}.")
-    return value
 
 
 class TemperedLogisticClassifier(LinearClassifierBase):
@@ -124,26 +122,29 @@ class TemperedLogisticClassifier(LinearClassifierBase):
         self.tol = tol
         self.warm_start = warm_start
 
+    _parameter_constraints = ParameterTable(
+        {
+            "t1": Interval(0.0, 1.0, why="t1 < 1 bounds the loss"),
+            "t2": Interval(
+                1.0,
+                5.0,
+                why="t2 > 1 gives heavy tails; t2 < 1 gives a softmax with finite support, "
+                "which can leave classes with zero probability and no gradient",
+            ),
+            "label_smoothing": Interval(0.0, 1.0, closed="left"),
+            "prior_scale": Scale(),
+            "start": Options("convex", "zero", listing="or"),
+            "max_iter": PositiveInt(),
+            "tol": PositiveFloat(),
+            "fit_intercept": Boolean(),
+            "warm_start": Boolean(),
+        }
+    )
+
     def _check_params(self):
-        self._t1 = _check_temperature("t1", self.t1, 0.0, 1.0, "t1 < 1 bounds the loss")
-        self._t2 = _check_temperature(
-            "t2",
-            self.t2,
-            1.0,
-            5.0,
-            "t2 > 1 gives heavy tails; t2 < 1 gives a softmax with finite support, "
-            "which can leave classes with zero probability and no gradient",
-        )
-        ls = self.label_smoothing
-        if isinstance(ls, bool) or not isinstance(ls, numbers.Real) or not 0 <= ls < 1:
-            raise ValueError(f"label_smoothing must be in [0, 1); got {ls!r}.")
-        self._scale = check_scale("prior_scale", self.prior_scale)
-        if self.start not in ("convex", "zero"):
-            raise ValueError(f"start must be 'convex' or 'zero'; got {self.start!r}.")
-        check_positive_int("max_iter", self.max_iter)
-        check_positive_float("tol", self.tol)
-        check_bool("fit_intercept", self.fit_intercept)
-        check_bool("warm_start", self.warm_start)
+        checked = super()._check_params()
+        self._t1, self._t2, self._scale = checked["t1"], checked["t2"], checked["prior_scale"]
+        return checked
 
     # -- fitting -------------------------------------------------------------
     def fit(self, X, y, sample_weight=None):
