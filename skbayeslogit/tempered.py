@@ -19,6 +19,7 @@ from ._fit.lbfgs import minimize_scaled
 from ._fit.likelihoods import BinaryLogistic, MultinomialLogistic
 from ._fit.newton import NewtonProblem, solve_map
 from ._fit.tempered_likelihood import BiTemperedLikelihood
+from ._linear.layout import ParameterLayout
 from ._linear.scaling import ColumnScaling
 from ._linear.sources import dask_aware
 from .tempered_functions import tempered_softmax
@@ -255,10 +256,7 @@ class TemperedLogisticClassifier(LinearClassifierBase):
     def _previous_parameters(self):
         if not (self.warm_start and hasattr(self, "coef_")):
             return None
-        parts = [self.coef_.ravel()]
-        if self.fit_intercept:
-            parts.append(self.intercept_)
-        return np.concatenate(parts)
+        return ParameterLayout.of_estimator(self).join(self.coef_, self.intercept_)
 
     def _starting_point(self, data, prior, previous):
         """The previous fit's parameters (warm start), the convex start, or zeros."""
