@@ -44,6 +44,7 @@ _VALUE_TOL = 1e-3  # Brent's absolute tolerance on the hyperparameter
 _STEP_NATS = (0.25, 1.0)  # the grid step's evidence drop: about one sd is 0.5 nats
 _TAIL_NATS = 6.0  # the grid ends this far below the peak (e^-6 of the mass left out)
 _MAX_STEPS = 16  # grid points on each side at most
+_WIDEST = 0.125  # the longest step, as a share of the range
 
 
 @dataclass(frozen=True)
@@ -147,14 +148,18 @@ def maximise_joint_evidence(design, w, fit_at, search, prior_scale, free_map=Non
 def _step(values, u_best, lower, upper):
     """A grid step over which the evidence falls by about half a nat (one sd)."""
     peak = values.log_evidence(u_best)
-    h = 0.02 * (upper - lower)
+    width = upper - lower
+    h = 0.02 * width
     for _ in range(8):
         sides = [u for u in (u_best - h, u_best + h) if lower <= u < upper]
         drop = peak - np.mean([values.log_evidence(u) for u in sides])
         if _STEP_NATS[0] <= drop <= _STEP_NATS[1]:
             break
+        if not np.isfinite(drop):  # a failed fit beside the peak: step shorter
+            drop = np.inf
         # A quadratic fall-off gives drop ~ h^2: the factor lands on 0.5 nats.
-        h = min(h * float(np.clip(np.sqrt(0.5 / max(drop, 1e-3)), 0.1, 8.0)), upper - lower)
+        # At most an eighth of the range: a flat evidence still gets a grid.
+        h = min(h * float(np.clip(np.sqrt(0.5 / max(drop, 1e-3)), 0.1, 8.0)), _WIDEST * width)
     return h
 
 
@@ -205,6 +210,7 @@ def average_over_value(values, u_best, lower, upper, free_map=None):
     """
     grid = _grid(values, u_best, lower, upper)
     log_ev = np.array([values.log_evidence(u) for u in grid])
+    log_ev[~np.isfinite(log_ev)] = -np.inf  # a failed fit weighs nothing
     # Trapezoid weights on the (possibly uneven) grid, times the evidence.
     gaps = np.diff(grid)
     weights = 0.5 * (np.r_[gaps, 0.0] + np.r_[0.0, gaps]) * np.exp(log_ev - log_ev.max())
