@@ -239,6 +239,16 @@ class StandardizedClassifier(ClassifierMixin, BaseEstimator):
         """The wrapped estimator's per-row label-doubt score."""
         return self.estimator_.label_doubt(self._standardize(X), y)
 
+    @available_if(_inner_has("flip_probability"))
+    def flip_probability(self, X, y):
+        """The wrapped estimator's probability that each recorded label was flipped."""
+        return self.estimator_.flip_probability(self._standardize(X), y)
+
+    @available_if(_inner_has("predict_recorded_proba"))
+    def predict_recorded_proba(self, X):
+        """The wrapped estimator's probabilities of the label as recorded (flips included)."""
+        return self.estimator_.predict_recorded_proba(self._standardize(X))
+
     # -- posterior on both scales ------------------------------------------------
     @available_if(_inner_has("coef_table"))
     def coef_table(self, level=0.9, scale="both"):
