@@ -194,7 +194,10 @@ class LabelFlipLogisticClassifier(GaussianPosteriorClassifier):
             self.flip_rate_, self.flip_rate_sd_ = joint.value, joint.value_sd
         return self
 
-    def _recorded_codes(self, y, n):
+    def _prob_true_is_recorded(self, X, y):
+        """Predictive probability that each row's TRUE class is its recorded label."""
+        P = self.predict_proba(X)
+        n = P.shape[0]
         y = np.asarray(y)
         if y.shape != (n,):
             raise ValueError(f"y must have shape ({n},); got {y.shape}.")
@@ -203,7 +206,7 @@ class LabelFlipLogisticClassifier(GaussianPosteriorClassifier):
         if np.any(unknown):
             bad = sorted({str(v) for v in y[unknown]})[:5]
             raise ValueError(f"y has labels not seen in fit: {', '.join(bad)}.")
-        return index
+        return P[np.arange(n), index]
 
     def predict_recorded_proba(self, X):
         """Predictive probabilities of the label as it would be RECORDED, flips included.
@@ -239,9 +242,7 @@ class LabelFlipLogisticClassifier(GaussianPosteriorClassifier):
             predictive probability (``predict_proba``) that the true class
             is the recorded one. 0 when ``flip_rate_`` is 0.
         """
-        P = self.predict_proba(X)
-        codes = self._recorded_codes(y, P.shape[0])
-        p = P[np.arange(len(codes)), codes]
+        p = self._prob_true_is_recorded(X, y)
         return flip_posterior(p, self.flip_rate_, len(self.classes_))
 
     def label_doubt(self, X, y):
@@ -262,7 +263,5 @@ class LabelFlipLogisticClassifier(GaussianPosteriorClassifier):
             decreasing function of p), and still ranks them when the fitted
             rate is 0, where every flip probability is 0.
         """
-        P = self.predict_proba(X)
-        codes = self._recorded_codes(y, P.shape[0])
-        p = P[np.arange(len(codes)), codes]
+        p = self._prob_true_is_recorded(X, y)
         return -np.log(np.maximum(p, np.finfo(float).tiny))

@@ -9,7 +9,9 @@ differences, scipy quadrature, simulation with a known truth, and
 scikit-learn's average precision.
 """
 
+import importlib.util
 import warnings
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -36,17 +38,35 @@ def wine():
     return StandardScaler().fit_transform(X), y
 
 
-# A binary truth with flips (simulation, ground truth known).
-_W, _B, _RHO = np.array([1.5, -1.0]), 0.3, 0.15
+def _load_benchmark(name):
+    """A script of benchmarks/ as a module (its simulation is shared with these tests)."""
+    path = Path(__file__).resolve().parent.parent / "benchmarks" / f"{name}.py"
+    spec = importlib.util.spec_from_file_location(name, path)
+    module = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(module)
+    return module
 
 
-def _simulate(seed, n, rho=_RHO):
-    rng = np.random.default_rng(seed)
-    X = rng.standard_normal((n, 2))
-    y = (rng.random(n) < expit(X @ _W + _B)).astype(int)
-    flipped = rng.random(n) < rho
-    y[flipped] = 1 - y[flipped]
-    return X, y, flipped
+# A binary truth with flips (simulation, ground truth known):
+# P(true y = 1) = sigmoid(1.5 x1 - 1.0 x2 + 0.3), labels flipped at 0.15.
+_COVERAGE = _load_benchmark("coverage_label_flip")
+_W, _B, _RHO = _COVERAGE.TRUE_COEF, _COVERAGE.TRUE_INTERCEPT, _COVERAGE.TRUE_RATE
+_simulate = _COVERAGE.simulate
+
+
+def _assert_one_sd_coverage(models):
+    """The truth within one posterior sd in 68.3% of the models x parameters:
+    the count inside its binomial 99.9% band (seeds independent; the 3
+    parameters of one seed are correlated, which widens the true spread a
+    little)."""
+    truth = np.r_[_W, _B]
+    hits = sum(
+        int(_COVERAGE.hits(m.posterior_mean_, m.posterior_cov_, truth)[0].sum()) for m in models
+    )
+    p = norm.cdf(1) - norm.cdf(-1)
+    trials = 3 * len(models)
+    lo, hi = binom.ppf(0.0005, trials, p), binom.ppf(0.9995, trials, p)
+    assert lo <= hits <= hi
 
 
 @pytest.fixture(scope="module")
@@ -268,16 +288,11 @@ def test_known_rate_coefficients_covered_by_posterior_sd():
     seeds (Phi(1) - Phi(-1)); over 40 seeds x 3 parameters, the count must
     lie in the binomial 99.9% band (seeds independent; the 3 parameters of
     one seed are correlated, which widens the true spread a little)."""
-    hits = 0
-    seeds = 40
-    for seed in range(seeds):
+    models = []
+    for seed in range(40):
         X, y, _ = _simulate(seed, 1000)
-        model = LabelFlipLogisticClassifier(flip_rate=_RHO, prior_scale=10.0).fit(X, y)
-        sd = np.sqrt(np.diag(model.posterior_cov_))
-        hits += int(np.sum(np.abs(model.posterior_mean_ - np.r_[_W, _B]) <= sd))
-    p = norm.cdf(1) - norm.cdf(-1)
-    lo, hi = binom.ppf(0.0005, 3 * seeds, p), binom.ppf(0.9995, 3 * seeds, p)
-    assert lo <= hits <= hi
+        models.append(LabelFlipLogisticClassifier(flip_rate=_RHO, prior_scale=10.0).fit(X, y))
+    _assert_one_sd_coverage(models)
 
 
 def test_auto_rate_coefficients_covered_by_averaged_posterior_sd(auto_fits):
@@ -287,14 +302,7 @@ def test_auto_rate_coefficients_covered_by_averaged_posterior_sd(auto_fits):
     parameters (binomial 99.9% band). The plug-in posterior at the fitted
     rate held it in 40% (0.28-0.50 per parameter;
     benchmarks/coverage_label_flip.py), below that band."""
-    hits = 0
-    seeds = len(auto_fits)
-    for _, _, _, model in auto_fits:
-        sd = np.sqrt(np.diag(model.posterior_cov_))
-        hits += int(np.sum(np.abs(model.posterior_mean_ - np.r_[_W, _B]) <= sd))
-    p = norm.cdf(1) - norm.cdf(-1)
-    lo, hi = binom.ppf(0.0005, 3 * seeds, p), binom.ppf(0.9995, 3 * seeds, p)
-    assert lo <= hits <= hi
+    _assert_one_sd_coverage([model for _, _, _, model in auto_fits])
 
 
 def test_averaged_posterior_matches_a_fine_rate_grid(auto_fits):
