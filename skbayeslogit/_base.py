@@ -261,7 +261,8 @@ class GaussianPosteriorClassifier(
         ``fit`` then maximises the Laplace evidence over both and reports
         the posterior averaged over the hyperparameter (``_fit.
         hyperparameter``) instead of fitting ``_make_likelihood``'s; the
-        result is kept as ``_joint_fit``.
+        chosen value and its posterior sd are kept as ``_hyperparameter``
+        (None without a search).
         """
         return None
 
@@ -312,14 +313,14 @@ class GaussianPosteriorClassifier(
         # Memory-mapped or dask input runs the same solver over a design whose
         # passes run block by block where the data are (``_linear.sources``).
         with passes_own_threads():
-            self._joint_fit = None
+            self._hyperparameter = None
             if search is not None:
                 joint = maximise_joint_evidence(
                     design, w, fit_at, search, self._prior_scale, free_map
                 )
                 scale, result, log_ev = joint.scale, joint.result, joint.log_evidence
                 likelihood, mean, chol = joint.likelihood, joint.theta, joint.chol
-                self._joint_fit = joint
+                self._hyperparameter = (joint.value, joint.value_sd)
             else:
                 if self._prior_scale == "auto":
                     scale, result, log_ev = maximise_evidence(design, w, fit_at)

@@ -187,11 +187,8 @@ class LabelFlipLogisticClassifier(GaussianPosteriorClassifier):
         self
         """
         super().fit(X, y, sample_weight)
-        joint = self._joint_fit
-        if joint is None:
-            self.flip_rate_, self.flip_rate_sd_ = self._flip_rate, 0.0
-        else:
-            self.flip_rate_, self.flip_rate_sd_ = joint.value, joint.value_sd
+        chosen = self._hyperparameter
+        self.flip_rate_, self.flip_rate_sd_ = (self._flip_rate, 0.0) if chosen is None else chosen
         return self
 
     def _prob_true_is_recorded(self, X, y):
