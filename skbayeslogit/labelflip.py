@@ -162,6 +162,28 @@ class LabelFlipLogisticClassifier(GaussianPosteriorClassifier):
         top = (n_classes - 1) / n_classes
         return LikelihoodSearch(partial(_flip_likelihood, n_classes), top * _RATE_GRID, top)
 
+    def check_approximation(self, X, y, sample_weight=None, **options):
+        """Compare the Laplace posterior with the exact one at a given flip rate.
+
+        As ``LaplaceLogisticClassifier.check_approximation`` (the same
+        options), for a model fitted with a given ``flip_rate``: with
+        "auto" the reported posterior is a mixture over rates, not a
+        Laplace fit at one rate, and there is no single exact posterior to
+        check it against.
+
+        Raises
+        ------
+        ValueError
+            When ``flip_rate`` was "auto".
+        """
+        if self._flip_rate == "auto":
+            raise InvalidParameterError(
+                "check_approximation checks a Laplace fit at one flip rate, and with "
+                "flip_rate='auto' the posterior is averaged over rates; refit with "
+                "flip_rate=<model>.flip_rate_ to check the fit at that rate."
+            )
+        return super().check_approximation(X, y, sample_weight, **options)
+
     @staticmethod
     def _binary_link(eta):
         return expit(eta)

@@ -124,6 +124,10 @@ class BinaryLabelFlip:
         """log of the CLEAN P(true class = 1 | eta) = log sigmoid(eta)."""
         return log_expit(eta)
 
+    def recorded_log_prob(self, log_own):
+        """log p(recorded y) from log pi_y, the clean log probability of the recorded label."""
+        return np.logaddexp(self._log_c + log_own, self._log_e)
+
     def recorded_probability(self, p_true):
         """P(recorded label = class 1) from the true-class probability, shape of input."""
         return self.flip_rate + (1.0 - 2.0 * self.flip_rate) * p_true
@@ -148,6 +152,9 @@ class MultinomialLabelFlip:
         self.log_concave = self.flip_rate == 0.0
         self.start_likelihood = MultinomialLogistic(n_classes)
         self.fitted_with_certainty = self.start_likelihood.fitted_with_certainty
+
+    # The clean softmax (the approximation check's draws read it).
+    log_softmax = staticmethod(MultinomialLogistic.log_softmax)
 
     def _pieces(self, y, eta):
         """log p(y) (n,), r (n,), pi (n, K) and u = onehot(y) - pi (n, K)."""
@@ -197,6 +204,10 @@ class MultinomialLabelFlip:
         wr = w * r
         h = self._packed(wr, pi, (wr * (1.0 - r), u))
         return float(-(w @ log_p)), -wr[:, None] * u, h
+
+    def recorded_log_prob(self, log_own):
+        """log p(recorded y) from log pi_y, the clean log probability of the recorded label."""
+        return np.logaddexp(self._log_c + log_own, self._log_e)
 
     def recorded_probability(self, p_true):
         """P(recorded label = k) from the true-class probabilities (n, K)."""
