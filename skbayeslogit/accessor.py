@@ -65,12 +65,14 @@ from ._frame.evaluation import calibration_table, confusion_table, cost_threshol
 from ._frame.figures import boundary_view, calibration_view, coefficient_view
 from ._frame.fitting import fit_on_frame
 from ._frame.predictions import default_doubt_model, doubtful_rows, prediction_table
-from ._frame.registry import MODEL_NAMES, available_models, make_model
+from ._frame.model import FrameModel
+from ._frame.registry import MODEL_NAMES, available_models, is_fitted, make_model
 
 __all__ = [
     "MODEL_NAMES",
     "BayesLogitAccessor",
     "DroppedRowsWarning",
+    "FrameModel",
     "make_model",
 ]
 
@@ -91,49 +93,108 @@ class BayesLogitAccessor:
 
     # -- fitting -----------------------------------------------------------------
     def fit(
-        self, target, features=None, model="laplace", *, standardize=True, dropna=False, **params
+        self,
+        target,
+        features=None,
+        model="laplace",
+        *,
+        positive=None,
+        weight=None,
+        id=None,
+        exclude=None,
+        missing="error",
+        max_levels=20,
+        standardize=True,
+        dropna=False,
+        **params,
     ):
-        """Fit a classifier to ``target`` from feature columns of this frame.
+        """Fit a classifier to ``target`` from the feature columns of this frame.
 
         Parameters
         ----------
         target : column name
             The labels (any dtype with at least two distinct values).
         features : list of column names, optional
-            None: every numeric (and boolean) column except the target, in
-            frame order. Non-numeric columns are an error that names them.
+            None: every column that the role rules make a feature (see
+            "Column roles" in the module docstring).
         model : {"laplace", "probit", "tempered"} or estimator, default="laplace"
             A name, or a scikit-learn classifier instance, which is cloned
             (the caller's instance is never fitted in place).
+        positive : label, optional
+            Positive class of a binary target: the probability, interval,
+            confusion and cost tables are about it. Default: the second
+            class in sorted order (scikit-learn's ``classes_[1]``).
+        weight : column name, optional
+            Frequency weights (finite, >= 0): a row of weight 3 counts as
+            three rows.
+        id : column name or list, optional
+            ID columns: never features, kept in row-level outputs.
+        exclude : column name or list, optional
+            Columns left out.
+        missing : {"error", "drop", "impute"}, default="error"
+            Missing cells: an error counting them per column; rows left out
+            (with a DroppedRowsWarning); or imputed (median, most frequent
+            level).
+        max_levels : int, default=20
+            Text columns with more distinct values are left out.
         standardize : bool, default=True
-            Fit on standardised features (each column centred on its mean
-            and divided by its sd) through
-            :class:`~skbayeslogit.standardized.StandardizedClassifier`,
-            which takes features in their recorded units for prediction and
-            reports coefficients on both scales (``coef_table()``). The
-            prior then acts on the STANDARDISED scale: ``prior_scale`` is
-            the prior sd of the change in the linear predictor per standard
-            deviation of a feature, the same statement for every column
-            whatever its units. This is the default because a single prior
-            scale over features in grams, newtons and percent shrinks them
-            very unequally. False: the estimator is fitted on the features
-            as recorded and returned bare.
+            Fit on standardised encoded columns through
+            :class:`~skbayeslogit.standardized.StandardizedClassifier`, so
+            that ``prior_scale`` is the prior sd of the change in the linear
+            predictor per standard deviation of a column, the same statement
+            for every column whatever its units; ``coef_table()`` reports
+            both scales. False: fitted on the columns as encoded.
         dropna : bool, default=False
-            Leave out rows with a missing feature or target (with a
-            DroppedRowsWarning) instead of raising.
+            The older spelling of ``missing="drop"``.
         **params
             Constructor parameters of the model (for example
             ``prior_scale=1.0``).
 
         Returns
         -------
-        estimator
-            Fitted, with ``feature_names_in_`` the feature columns and
-            ``target_name_`` the target column.
+        FrameModel
+            Fitted; see the module docstring.
         """
-        return fit_on_frame(
-            self._df, target, features, model, standardize, dropna, params, stacklevel=3
-        )
+        options = {
+            "features": features, "positive": positive, "weight": weight, "id": id,
+            "exclude": exclude, "missing": missing, "max_levels": max_levels,
+            "standardize": standardize, "dropna": dropna,
+        }  # fmt: skip
+        return fit_on_frame(self._df, target, model, options, params)
+
+    def column_evidence(self, target, model="laplace", *, refit=False, **fit_options):
+        """Bayes factor of "no effect" for each original column.
+
+        Parameters
+        ----------
+        target : column name
+        model : name, unfitted estimator or fitted FrameModel, default="laplace"
+            Anything but a fitted model is fitted here with ``fit_options``
+            (the keywords of ``fit``, e.g. ``prior_scale=1.0``); it needs a
+            proper prior (not ``prior_scale=None``).
+        refit : bool, default=False
+            False: the closed-form Savage-Dickey ratio of the fitted
+            Gaussian posterior (Dickey 1971), accurate while zero lies in
+            the bulk of the posterior. True: the ratio of the Laplace
+            evidences with and without each column, one refit per column on
+            this frame, accurate in the tails too.
+
+        Returns
+        -------
+        pandas.DataFrame
+            One row per original column (a categorical column is one row,
+            its levels together): ``n_parameters``, ``log10_bf_no_effect``
+            (positive favours no effect), ``evidence`` (Kass & Raftery's
+            verbal scale) and ``method``.
+        """
+        if not is_fitted(model):
+            model = self.fit(target, model=model, **fit_options)
+        if not hasattr(model, "column_evidence"):
+            raise TypeError(
+                f"{type(model).__name__} gives no column evidence; use a model from "
+                "df.bayeslogit.fit with a Gaussian posterior (laplace, probit)."
+            )
+        return model.column_evidence(self._df if refit else None)
 
     # -- prediction ----------------------------------------------------------------
     def predict_table(self, model, level=0.9, *, dropna=False):
@@ -162,7 +223,7 @@ class BayesLogitAccessor:
         return prediction_table(self._df, model, check_level(level), dropna)
 
     # -- evaluation ---------------------------------------------------------------
-    def confusion(self, target, model, threshold=0.5, *, dropna=False):
+    def confusion(self, target, model, threshold=0.5, *, positive=None, dropna=False):
         """Counts and rates of the model's calls against the recorded labels.
 
         Parameters
@@ -171,6 +232,9 @@ class BayesLogitAccessor:
         model : fitted estimator, name or unfitted estimator (fitted here)
         threshold : float in [0, 1], default=0.5
             A row is called class ``c`` when P(c | x) >= threshold.
+        positive : label, optional
+            Positive class of a binary target. Default: the model's own
+            (``fit(positive=...)``), else scikit-learn's ``classes_[1]``.
         dropna : bool, default=False
 
         Returns
@@ -186,9 +250,9 @@ class BayesLogitAccessor:
             ``attrs["accuracy"]`` is the accuracy of the most probable class.
         """
         threshold = check_probability("threshold", threshold)
-        return confusion_table(self._df, target, model, threshold, dropna)
+        return confusion_table(self._df, target, model, threshold, dropna, positive)
 
-    def calibration(self, target, model, bins=10, *, dropna=False):
+    def calibration(self, target, model, bins=10, *, positive=None, dropna=False):
         """Reliability table, expected calibration error, Brier score, log loss.
 
         Parameters
@@ -198,6 +262,9 @@ class BayesLogitAccessor:
         bins : int >= 1, default=10
             Equal-width probability bins ``[0, 1/bins], (1/bins, 2/bins],
             ...`` (as scikit-learn's ``calibration_curve``, "uniform").
+        positive : label, optional
+            Positive class of a binary target. Default: the model's own
+            (``fit(positive=...)``), else scikit-learn's ``classes_[1]``.
         dropna : bool, default=False
 
         Returns
@@ -220,9 +287,11 @@ class BayesLogitAccessor:
             - ``ece_by_class`` (multiclass), ``n``, ``bins``, ``classes``.
         """
         bins = check_positive_int("bins", bins)
-        return calibration_table(self._df, target, model, bins, dropna)
+        return calibration_table(self._df, target, model, bins, dropna, positive)
 
-    def doubtful_labels(self, target, model=None, top=20, *, features=None, dropna=False):
+    def doubtful_labels(
+        self, target, model=None, top=20, *, features=None, positive=None, dropna=False
+    ):
         """The rows whose recorded labels the model most disagrees with.
 
         Parameters
@@ -238,6 +307,9 @@ class BayesLogitAccessor:
         features : list of column names, optional
             Features when the model is fitted here (default: every numeric
             column but the target).
+        positive : label, optional
+            Positive class of a binary target. Default: the model's own
+            (``fit(positive=...)``), else scikit-learn's ``classes_[1]``.
         dropna : bool, default=False
 
         Returns
@@ -261,7 +333,7 @@ class BayesLogitAccessor:
         if model is None:
             # Looked up here, at call time: the installation decides.
             model = default_doubt_model(available_models())
-        return doubtful_rows(self._df, target, model, top, features, dropna)
+        return doubtful_rows(self._df, target, model, top, features, dropna, positive)
 
     def compare(
         self,
@@ -273,6 +345,7 @@ class BayesLogitAccessor:
         random_state=None,
         standardize=True,
         dropna=False,
+        **fit_options,
     ):
         """Cross-validated comparison of several models on the same folds.
 
@@ -295,6 +368,11 @@ class BayesLogitAccessor:
         standardize : bool, default=True
             As in ``fit``: every model is fitted on standardised features.
         dropna : bool, default=False
+        **fit_options
+            ``positive``, ``weight``, ``id``, ``exclude``, ``missing``,
+            ``max_levels`` as in ``fit``. The column roles are decided once
+            on the whole frame; each fold encodes its own training rows (a
+            level absent from them scores as no level).
 
         Returns
         -------
@@ -307,19 +385,19 @@ class BayesLogitAccessor:
             not counted). Scores are on the held-out fold of each split.
         """
         cv = check_positive_int("cv", cv, minimum=2)
+        options = {"features": features, "dropna": dropna, **fit_options}
         return compare_models(
             self._df,
             target,
-            features,
             models,
             cv,
             available=available_models(),
             random_state=random_state,
             standardize=standardize,
-            dropna=dropna,
+            options=options,
         )
 
-    def cost_threshold(self, target, model, cost_fp, cost_fn, *, dropna=False):
+    def cost_threshold(self, target, model, cost_fp, cost_fn, *, positive=None, dropna=False):
         """The probability threshold that minimises the expected cost of errors.
 
         A row is called the positive class ``classes_[1]`` when its
@@ -334,6 +412,9 @@ class BayesLogitAccessor:
             Cost of calling a ``classes_[0]`` row positive.
         cost_fn : float > 0
             Cost of calling a ``classes_[1]`` row negative.
+        positive : label, optional
+            Positive class of a binary target. Default: the model's own
+            (``fit(positive=...)``), else scikit-learn's ``classes_[1]``.
         dropna : bool, default=False
 
         Returns
@@ -364,7 +445,7 @@ class BayesLogitAccessor:
         """
         c_fp = check_cost("cost_fp", cost_fp)
         c_fn = check_cost("cost_fn", cost_fn)
-        return cost_threshold_table(self._df, target, model, c_fp, c_fn, dropna)
+        return cost_threshold_table(self._df, target, model, c_fp, c_fn, dropna, positive)
 
     # -- plots ----------------------------------------------------------------------
     def plot_coefficients(self, model, level=0.9, *, include_intercept=False):
@@ -456,7 +537,7 @@ class BayesLogitAccessor:
         )
         return boundary_figure(**view)
 
-    def plot_calibration(self, target, model, bins=10, *, dropna=False):
+    def plot_calibration(self, target, model, bins=10, *, positive=None, dropna=False):
         """Reliability diagram with bin counts and the calibration scores.
 
         Parameters
@@ -464,6 +545,9 @@ class BayesLogitAccessor:
         target : column name
         model : fitted estimator, name or unfitted estimator (fitted here)
         bins : int, default=10
+        positive : label, optional
+            Positive class of a binary target. Default: the model's own
+            (``fit(positive=...)``), else scikit-learn's ``classes_[1]``.
         dropna : bool, default=False
 
         Returns
@@ -475,5 +559,5 @@ class BayesLogitAccessor:
         from .plotting import calibration_figure, require_matplotlib
 
         require_matplotlib()
-        table = self.calibration(target, model, bins, dropna=dropna)
+        table = self.calibration(target, model, bins, positive=positive, dropna=dropna)
         return calibration_figure(**calibration_view(table, target))

@@ -1,0 +1,440 @@
+"""A classifier fitted on a table: column roles, encoding and estimator in one object.
+
+:class:`FrameModel` is what ``df.bayeslogit.fit`` returns and what the
+report saves. It decides the role of every column once
+(:func:`~skbayeslogit._frame.roles.assign_roles`), encodes the features
+with scikit-learn transformers (:func:`~skbayeslogit._frame.encoding.encode_frame`),
+fits the estimator, and keeps both as one scikit-learn ``Pipeline``, so a
+new table is encoded exactly as the training table was.
+"""
+
+import numpy as np
+import pandas as pd
+from sklearn.base import BaseEstimator, ClassifierMixin, clone
+from sklearn.pipeline import Pipeline
+from sklearn.utils.metaestimators import available_if
+from sklearn.utils.validation import check_is_fitted
+
+from .._checks.inputs import check_level
+from .columns import require_columns
+from .encoding import count_unseen, encode_frame
+from .errors import FrameInputError
+from .orientation import oriented_bounds, oriented_coefficients, probability_columns
+from .roles import assign_roles
+from .rows import missing_policy, rows_used
+
+# Fitted attributes of the final estimator that the model shows as its own
+# (``estimator_`` is the standardised-scale fit inside StandardizedClassifier).
+_PASSED_ON = frozenset(
+    {
+        "coef_", "intercept_", "posterior_mean_", "posterior_cov_", "prior_scale_",
+        "log_evidence_", "n_iter_", "estimator_", "center_", "scale_", "flip_rate_",
+    }
+)  # fmt: skip
+
+
+def _final_has(name):
+    def check(self):
+        final = self.pipeline_[-1] if hasattr(self, "pipeline_") else self.estimator
+        return hasattr(final, name)
+
+    return check
+
+
+def default_positive(col):
+    """The second of two classes in scikit-learn's (sorted) order, or None."""
+    labels = pd.unique(col.dropna())
+    if len(labels) != 2:
+        return None
+    try:
+        return sorted(labels)[-1]
+    except TypeError:
+        return sorted(labels, key=str)[-1]
+
+
+class FrameModel(ClassifierMixin, BaseEstimator):
+    """Column roles, encoding and a classifier, fitted on one table.
+
+    Fit it on a DataFrame that holds the target column; predict from any
+    DataFrame that holds the feature columns (extra columns, any order).
+
+    Parameters
+    ----------
+    estimator : classifier
+        Unfitted; cloned, never fitted in place.
+    target : str
+        The label column.
+    features, exclude, id : str or list of str, optional
+        As in :func:`~skbayeslogit._frame.roles.assign_roles`. ID columns
+        are never features.
+    positive : label, optional
+        Positive class of a binary target. Default: the second class in
+        sorted order (scikit-learn's ``classes_[1]``).
+    weight : str, optional
+        Column of frequency weights (an integer weight equals repeating
+        the row).
+    missing : {"error", "drop", "impute"}, default="error"
+        Missing cells in fitting and prediction: an error counting them,
+        rows left out (fitting only; in prediction they are an error), or
+        median / most frequent level imputed by the encoder.
+    max_levels : int, default=20
+        Text columns with more distinct values are left out.
+    standardize : bool, default=True
+        Fit through :class:`~skbayeslogit.standardized.StandardizedClassifier`
+        on standardised encoded columns (the prior acts per standard
+        deviation); coefficients are reported on both scales.
+
+    Attributes
+    ----------
+    pipeline_ : sklearn.pipeline.Pipeline
+        ``("encode", ColumnTransformer)`` then ``("classify", estimator)``;
+        takes a DataFrame of the feature columns.
+    classes_ : ndarray
+        The estimator's classes, in scikit-learn's (sorted) order.
+    positive_ : label or None
+        Binary: the positive class; None for multiclass.
+    positive_index_ : int or None
+        Position of ``positive_`` in ``classes_``.
+    target_name_ : str
+    feature_names_in_ : ndarray of str
+        The original feature columns (numeric, then categorical).
+    feature_names_out_ : ndarray of str
+        The encoded columns the estimator sees (``column=level`` for levels).
+    numeric_columns_, categorical_columns_, id_columns_ : list of str
+    weight_column_ : str or None
+    groups_ : dict of str to list of str
+        Original column -> its encoded columns.
+    reference_levels_ : dict
+        Categorical column -> level without a coefficient (no prior only).
+    columns_ : pandas.DataFrame
+        One row per input column: column, role, kind, reason, missing,
+        distinct (``columns.csv``).
+    statements_ : list of str
+        Every decision taken without being told.
+    rows_dropped_ : int
+    imputed_ : dict
+        Column -> cells imputed in fitting.
+    n_features_in_ : int
+
+    Notes
+    -----
+    Attributes are plain Python, numpy, pandas and scikit-learn objects
+    (for saving with skops). ``coef_``, ``posterior_mean_``, ``prior_scale_``
+    and the final estimator's other fitted attributes are read through.
+    """
+
+    def __init__(
+        self,
+        estimator,
+        target,
+        *,
+        features=None,
+        positive=None,
+        weight=None,
+        id=None,
+        exclude=None,
+        missing="error",
+        max_levels=20,
+        standardize=True,
+    ):
+        self.estimator = estimator
+        self.target = target
+        self.features = features
+        self.positive = positive
+        self.weight = weight
+        self.id = id
+        self.exclude = exclude
+        self.missing = missing
+        self.max_levels = max_levels
+        self.standardize = standardize
+
+    def __getattr__(self, name):
+        if name in _PASSED_ON and "pipeline_" in self.__dict__:
+            return getattr(self.__dict__["pipeline_"][-1], name)
+        raise AttributeError(f"{type(self).__name__!r} object has no attribute {name!r}")
+
+    # -- fitting -----------------------------------------------------------------
+    def fit(self, X, y=None, sample_weight=None):
+        """Decide the column roles, encode, fit the estimator.
+
+        Parameters
+        ----------
+        X : pandas.DataFrame
+            The table, with the target column; never modified.
+        y, sample_weight : None
+            Labels and weights come from the table (``target``, ``weight``).
+
+        Returns
+        -------
+        self
+        """
+        if y is not None or sample_weight is not None:
+            raise TypeError("FrameModel takes labels and weights from the table's columns.")
+        df = _as_frame(X)
+        policy = missing_policy(self.missing)
+        roles = self.decide_roles(df)
+        keep = rows_used(df, roles.features, self.target, policy)
+        used = df if keep.all() else df.loc[keep]
+        prior = _prior_scale(self.estimator)
+        enc = encode_frame(
+            used, roles, missing="impute" if policy == "impute" else "error", prior_scale=prior
+        )
+        final = clone(self.estimator)
+        if self.standardize:
+            from ..standardized import StandardizedClassifier
+
+            final = StandardizedClassifier(final)
+        labels = labels_of(used[self.target])
+        if enc.sample_weight is None:
+            final.fit(enc.X, labels)
+        else:
+            final.fit(enc.X, labels, sample_weight=enc.sample_weight)
+        self.pipeline_ = Pipeline([("encode", enc.encoder), ("classify", final)])
+        self._record(roles, enc, final, int((~keep).sum()))
+        return self
+
+    def decide_roles(self, df):
+        """The role of every column of ``df`` under this model's options.
+
+        Parameters
+        ----------
+        df : pandas.DataFrame
+
+        Returns
+        -------
+        ColumnRoles
+            See :func:`~skbayeslogit._frame.roles.assign_roles`.
+        """
+        require_columns(df, [self.target])
+        classes = pd.unique(df[self.target].dropna())
+        if len(classes) < 2:
+            shown = f" ({classes[0]!r})" if len(classes) else ""
+            raise FrameInputError(
+                f"the target {self.target!r} has only one class{shown} among its "
+                "non-missing values; a classifier needs at least two classes."
+            )
+        positive = self.positive
+        if positive is None:
+            positive = default_positive(df[self.target])
+        roles = assign_roles(
+            df, self.target, features=self.features, exclude=self.exclude, id=self.id,
+            weight=self.weight, positive=positive, max_levels=self.max_levels,
+        )  # fmt: skip
+        if self.positive is None and roles.positive is not None:
+            roles.statements = [
+                s if not s.startswith("positive class") else
+                f"positive class of {self.target!r}: {roles.positive!r} (the second class in "
+                "sorted order; pass positive= to choose)"
+                for s in roles.statements
+            ]  # fmt: skip
+        return roles
+
+    def _record(self, roles, enc, final, dropped):
+        self.classes_ = np.asarray(final.classes_)
+        self.positive_ = roles.positive
+        self.positive_index_ = None
+        if roles.positive is not None:
+            self.positive_index_ = int(np.flatnonzero(self.classes_ == roles.positive)[0])
+        self.target_name_ = roles.target
+        self.numeric_columns_ = list(roles.numeric)
+        self.categorical_columns_ = list(roles.categorical)
+        self.feature_names_in_ = np.array(roles.features, dtype=object)
+        self.feature_names_out_ = np.array(enc.X.columns, dtype=object)
+        self.n_features_in_ = len(roles.features)
+        self.id_columns_ = list(roles.ids)
+        self.weight_column_ = roles.weight
+        self.groups_ = {str(k): list(v) for k, v in enc.groups.items()}
+        self.reference_levels_ = dict(enc.reference_levels)
+        self.columns_ = roles.table
+        self.statements_ = list(roles.statements) + list(enc.statements)
+        self.rows_dropped_ = dropped
+        self.imputed_ = dict(enc.imputed)
+
+    # -- encoding ------------------------------------------------------------------
+    def transform(self, X):
+        """The encoded design of the rows of ``X`` (what the estimator sees).
+
+        Parameters
+        ----------
+        X : pandas.DataFrame
+            Holds the feature columns. A missing cell is an error unless the
+            model imputes (``missing="impute"``).
+
+        Returns
+        -------
+        pandas.DataFrame of float64, columns ``feature_names_out_``
+        """
+        check_is_fitted(self, "pipeline_")
+        df = _as_frame(X)
+        feats = list(self.feature_names_in_)
+        require_columns(df, feats)
+        policy = "impute" if self.missing == "impute" else "error"
+        rows_used(df, feats, None, policy)
+        _check_finite(df, self.numeric_columns_)
+        Z = np.ascontiguousarray(self.pipeline_[0].transform(df[feats]), dtype=np.float64)
+        return pd.DataFrame(Z, columns=list(self.feature_names_out_), index=df.index)
+
+    def unseen_levels(self, X):
+        """Cells of each categorical column whose level was not seen in fitting.
+
+        Such cells are encoded as "no level" (all zeros), not an error.
+
+        Returns
+        -------
+        dict
+            Column -> count, only the columns with any.
+        """
+        check_is_fitted(self, "pipeline_")
+        return count_unseen(self.pipeline_[0], _as_frame(X))
+
+    # -- prediction ------------------------------------------------------------------
+    def predict_proba(self, X):
+        """Class probabilities, shape (n, n_classes), columns in ``classes_`` order."""
+        return self.pipeline_[-1].predict_proba(self.transform(X))
+
+    def predict(self, X):
+        """The most probable class of each row."""
+        return self.pipeline_[-1].predict(self.transform(X))
+
+    @available_if(_final_has("decision_function"))
+    def decision_function(self, X):
+        """The estimator's decision function on the encoded rows."""
+        return self.pipeline_[-1].decision_function(self.transform(X))
+
+    @available_if(_final_has("predict_interval"))
+    def predict_interval(self, X, level=0.9):
+        """Credible bounds of the class probabilities.
+
+        Returns
+        -------
+        lower, upper : ndarray
+            Binary: shape (n,), bounds of P(``positive_`` | x). Multiclass:
+            shape (n, K), columns in ``classes_`` order.
+        """
+        lower, upper = self.pipeline_[-1].predict_interval(self.transform(X), level=level)
+        return oriented_bounds(lower, upper, self.positive_index_)
+
+    @available_if(_final_has("label_doubt"))
+    def label_doubt(self, X, y):
+        """The estimator's per-row doubt about the recorded labels ``y``."""
+        return self.pipeline_[-1].label_doubt(self.transform(X), y)
+
+    @available_if(_final_has("sample_coef"))
+    def sample_coef(self, n, random_state=None):
+        """Posterior draws, columns in the order of ``feature_names_out_`` then intercept(s).
+
+        Binary draws are of the log-odds of ``classes_[1]``, as ``coef_``.
+        """
+        return self.pipeline_[-1].sample_coef(n, random_state=random_state)
+
+    def probability_table(self, X, level=0.9):
+        """Probabilities, credible bounds and the predicted label of each row.
+
+        Parameters
+        ----------
+        X : pandas.DataFrame
+        level : float in (0, 1)
+
+        Returns
+        -------
+        pandas.DataFrame
+            Indexed as ``X``. Binary: ``prob_<positive>``, ``prob_<positive>_lower``,
+            ``prob_<positive>_upper``; multiclass: the three for every class;
+            the bounds only for estimators with ``predict_interval``; then
+            ``predicted_label``. ``attrs["unseen_levels"]`` counts the cells
+            with a level not seen in fitting.
+        """
+        level = check_level(level)
+        df = _as_frame(X)
+        P = self.predict_proba(df)
+        bounds = None
+        if hasattr(self, "predict_interval"):
+            bounds = self.predict_interval(df, level=level)
+        out = pd.DataFrame(
+            probability_columns(P, bounds, self.classes_, self.positive_index_), index=df.index
+        )
+        out.attrs = {"level": level, "unseen_levels": self.unseen_levels(df)}
+        return out
+
+    # -- the posterior -----------------------------------------------------------------
+    def coef_table(self, level=0.9):
+        """Coefficients of the encoded columns (``column=level``), on both scales.
+
+        Binary: of the log-odds of ``positive_`` (signs and bounds flipped
+        when it is ``classes_[0]``). Without a posterior (an estimator
+        without ``coef_table``), the estimates only.
+
+        Returns
+        -------
+        pandas.DataFrame
+            See :meth:`StandardizedClassifier.coef_table`;
+            ``attrs["positive_class"]`` names the class (binary).
+        """
+        from .fitting import coefficient_table
+
+        check_is_fitted(self, "pipeline_")
+        table = coefficient_table(self.pipeline_[-1], check_level(level))
+        return oriented_coefficients(table, self.classes_, self.positive_index_)
+
+    @available_if(_final_has("column_evidence"))
+    def column_evidence(self, X=None):
+        """Bayes factor of "no effect" per ORIGINAL column (levels grouped).
+
+        Parameters
+        ----------
+        X : pandas.DataFrame, optional
+            None: the closed-form Savage-Dickey ratio of the fitted posterior.
+            A table (with the target, and the weight column if any): the
+            ratio of Laplace evidences refitted on its rows, one fit per
+            column.
+
+        Returns
+        -------
+        pandas.DataFrame
+            Indexed by original column: ``n_parameters``,
+            ``log10_bf_no_effect`` (positive favours no effect),
+            ``evidence``, ``method``.
+        """
+        check_is_fitted(self, "pipeline_")
+        final = self.pipeline_[-1]
+        if X is None:
+            return final.column_evidence(self.groups_)
+        df = _as_frame(X)
+        policy = missing_policy(self.missing)
+        keep = rows_used(df, list(self.feature_names_in_), self.target, policy, stacklevel=3)
+        used = df if keep.all() else df.loc[keep]
+        w = None if self.weight_column_ is None else used[self.weight_column_].to_numpy(float)
+        Z = self.transform(used)
+        return final.column_evidence(self.groups_, Z, labels_of(used[self.target]), w)
+
+
+def _prior_scale(estimator):
+    """The estimator's ``prior_scale`` parameter (also inside a wrapper); 1.0 if none."""
+    params = estimator.get_params()
+    found = [v for k, v in params.items() if k == "prior_scale" or k.endswith("__prior_scale")]
+    return found[0] if found else 1.0
+
+
+def _as_frame(X):
+    if not isinstance(X, pd.DataFrame):
+        raise TypeError(
+            f"a FrameModel reads columns by name: pass a pandas DataFrame, not {type(X).__name__}."
+        )
+    return X
+
+
+def labels_of(col):
+    """The label column as an array: object for text and categories, else its own dtype."""
+    is_text = pd.api.types.is_string_dtype(col.dtype) or isinstance(col.dtype, pd.CategoricalDtype)
+    return np.asarray(col.to_numpy(dtype=object) if is_text else col.to_numpy())
+
+
+def _check_finite(df, numeric):
+    if not numeric:
+        return
+    values = df[numeric].to_numpy(dtype=np.float64, na_value=np.nan)
+    bad = [c for j, c in enumerate(numeric) if np.isinf(values[:, j]).any()]
+    if bad:
+        raise FrameInputError(
+            f"feature column(s) with infinite values: {', '.join(bad)}; replace them first."
+        )
