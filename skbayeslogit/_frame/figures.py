@@ -18,12 +18,12 @@ def coefficient_view(model, level, include_intercept):
     """Estimates and bounds of a fitted model's coefficients, and the axis label."""
     if not is_fitted(model):
         raise TypeError("plot_coefficients needs a fitted model.")
-    if not hasattr(model, "coef_table"):
+    table = model.coef_table(level) if hasattr(model, "coef_table") else None
+    if table is None or "lower" not in table.columns:
         raise TypeError(
-            f"{type(model).__name__} has no posterior (no coef_table), so it has no "
+            f"{model_label(model)} has no posterior (no coef_table), so it has no "
             "credible intervals to plot; use the laplace or probit model."
         )
-    table = model.coef_table(level)
     standardized = "estimate_original" in table.columns
     table = table[["estimate", "lower", "upper"]]
     if not include_intercept:

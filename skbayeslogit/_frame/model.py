@@ -220,6 +220,11 @@ class FrameModel(ClassifierMixin, BaseEstimator):
             df, self.target, features=self.features, exclude=self.exclude, id=self.id,
             weight=self.weight, positive=positive, max_levels=self.max_levels,
         )  # fmt: skip
+        if self.features is not None:
+            # The caller's order, not the table's.
+            order = [self.features] if isinstance(self.features, str) else list(self.features)
+            roles.numeric = [c for c in order if c in roles.numeric]
+            roles.categorical = [c for c in order if c in roles.categorical]
         if self.positive is None and roles.positive is not None:
             roles.statements = [
                 s if not s.startswith("positive class") else
