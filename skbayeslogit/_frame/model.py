@@ -16,7 +16,7 @@ from sklearn.utils.metaestimators import available_if
 from sklearn.utils.validation import check_is_fitted
 
 from .._checks.inputs import check_level
-from .columns import require_columns
+from .columns import is_numeric_dtype, require_columns
 from .encoding import count_unseen, encode_frame
 from .errors import FrameInputError
 from .orientation import oriented_bounds, oriented_coefficients, probability_columns
@@ -173,6 +173,7 @@ class FrameModel(ClassifierMixin, BaseEstimator):
         df = _as_frame(X)
         policy = missing_policy(self.missing)
         roles = self.decide_roles(df)
+        _check_numbers(df, roles.numeric)
         keep = rows_used(df, roles.features, self.target, policy)
         used = df if keep.all() else df.loc[keep]
         prior = _prior_scale(self.estimator)
@@ -206,6 +207,8 @@ class FrameModel(ClassifierMixin, BaseEstimator):
             See :func:`~skbayeslogit._frame.roles.assign_roles`.
         """
         require_columns(df, [self.target])
+        if len(df) == 0:
+            raise FrameInputError("no rows to fit: the frame has 0 rows.")
         classes = pd.unique(df[self.target].dropna())
         if len(classes) < 2:
             shown = f" ({classes[0]!r})" if len(classes) else ""
@@ -275,7 +278,7 @@ class FrameModel(ClassifierMixin, BaseEstimator):
         require_columns(df, feats)
         policy = "impute" if self.missing == "impute" else "error"
         rows_used(df, feats, None, policy)
-        _check_finite(df, self.numeric_columns_)
+        _check_numbers(df, self.numeric_columns_)
         Z = np.ascontiguousarray(self.pipeline_[0].transform(df[feats]), dtype=np.float64)
         return pd.DataFrame(Z, columns=list(self.feature_names_out_), index=df.index)
 
@@ -434,9 +437,22 @@ def labels_of(col):
     return np.asarray(col.to_numpy(dtype=object) if is_text else col.to_numpy())
 
 
-def _check_finite(df, numeric):
+def _check_numbers(df, numeric):
+    """One-line errors for complex or infinite values in numeric feature columns."""
     if not numeric:
         return
+    text = [c for c in numeric if not is_numeric_dtype(df[c].dtype)]
+    if text:
+        kinds = ", ".join(f"{c} ({df[c].dtype})" for c in text)
+        raise FrameInputError(
+            f"non-numeric feature column(s): {kinds}; the model was fitted on numbers there."
+        )
+    complex_cols = [c for c in numeric if pd.api.types.is_complex_dtype(df[c].dtype)]
+    if complex_cols:
+        kinds = ", ".join(f"{c} ({df[c].dtype})" for c in complex_cols)
+        raise FrameInputError(
+            f"feature column(s) of complex numbers: {kinds}; a classifier needs real numbers."
+        )
     values = df[numeric].to_numpy(dtype=np.float64, na_value=np.nan)
     bad = [c for j, c in enumerate(numeric) if np.isinf(values[:, j]).any()]
     if bad:
