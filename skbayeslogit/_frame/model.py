@@ -322,6 +322,17 @@ class FrameModel(ClassifierMixin, BaseEstimator):
         lower, upper = self.pipeline_[-1].predict_interval(self.transform(X), level=level)
         return oriented_bounds(lower, upper, self.positive_index_)
 
+    @available_if(_final_has("logit_moments"))
+    def logit_moments(self, X):
+        """Posterior mean and variance of the latent linear predictor.
+
+        Binary: of the log-odds (or probit index) of ``positive_``.
+        """
+        mean, var = self.pipeline_[-1].logit_moments(self.transform(X))
+        if self.positive_index_ == 0:
+            mean = -np.asarray(mean)
+        return mean, var
+
     @available_if(_final_has("label_doubt"))
     def label_doubt(self, X, y):
         """The estimator's per-row doubt about the recorded labels ``y``."""
