@@ -2,50 +2,18 @@
 
 Importing this module registers the accessor (``import skbayeslogit`` does
 it for you). Every method reads the frame, never changes it, and returns a
-new DataFrame, a fitted estimator or a :class:`matplotlib.figure.Figure`::
+new DataFrame, a fitted model or a :class:`matplotlib.figure.Figure`.
 
-    import skbayeslogit.accessor  # registers df.bayeslogit
-    from skbayeslogit.datasets import make_orchard_lots
-
-    df = make_orchard_lots(400, random_state=0)
-    model = df.bayeslogit.fit("storage_grade")        # every numeric column
-    model.coef_table()                                # both scales
-    table = df.bayeslogit.predict_table(model)        # probability, bounds, label
-    scores = df.bayeslogit.compare("storage_grade", random_state=0)
-
-How a fitted model remembers its columns
-----------------------------------------
-``fit`` passes the features to the estimator as a DataFrame, so the fitted
-estimator carries scikit-learn's ``feature_names_in_``. Every method that
-takes a fitted model selects exactly those columns from the frame it is
-called on (a missing one is a KeyError that lists the frame's columns), so a
-model fitted on one frame predicts on another with the same columns, in any
-column order. The target is always passed by name, with one exception:
-``plot_boundary`` (whose signature has no target) falls back to the
-attribute ``target_name_`` that ``fit`` sets on the estimator it returns.
-
-Methods whose ``model`` argument is a name ("laplace", "probit",
-"tempered") or an unfitted estimator fit it first on this frame (the
-target and every numeric column but the target, standardised as in
-``fit``); the evaluation is then in-sample.
-
-Models by name
---------------
-"laplace" (:class:`~skbayeslogit.LaplaceLogisticClassifier`), "probit"
-(:class:`~skbayeslogit.probit.ProbitClassifier`, binary only) and
-"tempered" (:class:`~skbayeslogit.tempered.TemperedLogisticClassifier`)
-are imported only when first used, so the accessor works in an
-installation where some of them are missing; :func:`make_model` names the
-missing one in its error.
-
-Missing values
---------------
-By default a NaN in a used column (features or target) is an error that
-counts the missing values per column. With ``dropna=True`` the rows with a
-NaN in a used column are left out, a :class:`DroppedRowsWarning` says how
-many, and DataFrame results record the number in
-``result.attrs["rows_dropped"]``. Infinite feature values are always an
-error.
+``fit`` returns a :class:`~skbayeslogit._frame.model.FrameModel`: the column
+roles (decided once; ``columns_`` and ``statements_`` say which and why),
+the encoding (levels named ``column=level``) and the estimator as one
+fitted object that reads its columns by name from any frame. Methods whose
+``model`` is a name ("laplace", "probit", "tempered", imported when first
+used) or an unfitted estimator fit it on this frame first (in-sample).
+Missing values: ``missing="error"`` (counted per column in the error),
+``"drop"`` (or ``dropna=True``: rows left out with a DroppedRowsWarning and
+``attrs["rows_dropped"]``) or ``"impute"``. docs/input-handling.md has the
+rules.
 
 Caution
 -------
@@ -62,10 +30,15 @@ from ._frame.arguments import check_cost, check_positive_int, check_probability
 from ._frame.columns import DroppedRowsWarning
 from ._frame.comparison import compare_models
 from ._frame.evaluation import calibration_table, confusion_table, cost_threshold_table
-from ._frame.figures import boundary_view, calibration_view, coefficient_view
-from ._frame.fitting import fit_on_frame
-from ._frame.predictions import default_doubt_model, doubtful_rows, prediction_table
+from ._frame.figures import (
+    boundary_view,
+    calibration_view,
+    checked_boundary_options,
+    coefficient_view,
+)
+from ._frame.fitting import evidence_of_columns, fit_on_frame
 from ._frame.model import FrameModel
+from ._frame.predictions import default_doubt_model, doubtful_rows, prediction_table
 from ._frame.registry import MODEL_NAMES, available_models, is_fitted, make_model
 
 __all__ = [
@@ -121,31 +94,25 @@ class BayesLogitAccessor:
             A name, or a scikit-learn classifier instance, which is cloned
             (the caller's instance is never fitted in place).
         positive : label, optional
-            Positive class of a binary target: the probability, interval,
-            confusion and cost tables are about it. Default: the second
-            class in sorted order (scikit-learn's ``classes_[1]``).
+            Positive class of a binary target (probabilities, intervals,
+            confusion and costs are about it). Default: the second class in
+            sorted order (scikit-learn's ``classes_[1]``).
         weight : column name, optional
-            Frequency weights (finite, >= 0): a row of weight 3 counts as
-            three rows.
-        id : column name or list, optional
-            ID columns: never features, kept in row-level outputs.
-        exclude : column name or list, optional
-            Columns left out.
+            Frequency weights (finite, >= 0): weight 3 counts as three rows.
+        id, exclude : column name or list, optional
+            ID columns (never features, kept in row-level outputs); columns
+            left out.
         missing : {"error", "drop", "impute"}, default="error"
-            Missing cells: an error counting them per column; rows left out
-            (with a DroppedRowsWarning); or imputed (median, most frequent
-            level).
+            See "Missing values" above; ``dropna=True`` is ``"drop"``.
         max_levels : int, default=20
             Text columns with more distinct values are left out.
         standardize : bool, default=True
-            Fit on standardised encoded columns through
-            :class:`~skbayeslogit.standardized.StandardizedClassifier`, so
-            that ``prior_scale`` is the prior sd of the change in the linear
-            predictor per standard deviation of a column, the same statement
-            for every column whatever its units; ``coef_table()`` reports
-            both scales. False: fitted on the columns as encoded.
+            Fit on standardised encoded columns
+            (:class:`~skbayeslogit.standardized.StandardizedClassifier`):
+            ``prior_scale`` is then the prior sd of the change in the linear
+            predictor per standard deviation of a column, whatever its
+            units; ``coef_table()`` reports both scales. False: as encoded.
         dropna : bool, default=False
-            The older spelling of ``missing="drop"``.
         **params
             Constructor parameters of the model (for example
             ``prior_scale=1.0``).
@@ -169,9 +136,8 @@ class BayesLogitAccessor:
         ----------
         target : column name
         model : name, unfitted estimator or fitted FrameModel, default="laplace"
-            Anything but a fitted model is fitted here with ``fit_options``
-            (the keywords of ``fit``, e.g. ``prior_scale=1.0``); it needs a
-            proper prior (not ``prior_scale=None``).
+            Fitted here unless fitted, with ``fit_options`` (keywords of
+            ``fit``); it needs a proper prior (not ``prior_scale=None``).
         refit : bool, default=False
             False: the closed-form Savage-Dickey ratio of the fitted
             Gaussian posterior (Dickey 1971), accurate while zero lies in
@@ -189,12 +155,7 @@ class BayesLogitAccessor:
         """
         if not is_fitted(model):
             model = self.fit(target, model=model, **fit_options)
-        if not hasattr(model, "column_evidence"):
-            raise TypeError(
-                f"{type(model).__name__} gives no column evidence; use a model from "
-                "df.bayeslogit.fit with a Gaussian posterior (laplace, probit)."
-            )
-        return model.column_evidence(self._df if refit else None)
+        return evidence_of_columns(model, self._df if refit else None)
 
     # -- prediction ----------------------------------------------------------------
     def predict_table(self, model, level=0.9, *, dropna=False):
@@ -214,7 +175,7 @@ class BayesLogitAccessor:
         pandas.DataFrame
             A copy of the frame's (used) rows with new columns, for binary
             models ``prob_<c>``, ``prob_<c>_lower``, ``prob_<c>_upper`` for
-            the positive class ``c = classes_[1]``; for multiclass models
+            the model's positive class ``c``; for multiclass models
             the same three for every class; then ``predicted_label``. The
             bounds are present only for models with ``predict_interval``
             (laplace, probit); other models get the probabilities and label
@@ -240,7 +201,7 @@ class BayesLogitAccessor:
         Returns
         -------
         pandas.DataFrame
-            Binary: one row, for the positive class ``classes_[1]``.
+            Binary: one row, for the positive class.
             Multiclass: one row per class, each class against the rest
             (one-vs-rest: a row can be called several classes or none).
             Columns ``threshold``, ``n``, ``tp``, ``fp``, ``fn``, ``tn``,
@@ -263,8 +224,7 @@ class BayesLogitAccessor:
             Equal-width probability bins ``[0, 1/bins], (1/bins, 2/bins],
             ...`` (as scikit-learn's ``calibration_curve``, "uniform").
         positive : label, optional
-            Positive class of a binary target. Default: the model's own
-            (``fit(positive=...)``), else scikit-learn's ``classes_[1]``.
+            As in ``confusion``.
         dropna : bool, default=False
 
         Returns
@@ -274,7 +234,7 @@ class BayesLogitAccessor:
             column; each class against the rest), columns ``bin``,
             ``bin_lower``, ``bin_upper``, ``count``, ``mean_predicted`` and
             ``observed_frequency`` (NaN for empty bins). Binary: of the
-            positive class ``classes_[1]``. The summary is in ``attrs``:
+            positive class. The summary is in ``attrs``:
 
             - ``ece``: expected calibration error, sum over bins of
               count / n * |observed - mean predicted| (multiclass: the mean
@@ -305,11 +265,9 @@ class BayesLogitAccessor:
         top : int or None, default=20
             How many rows to return; None returns every row, ranked.
         features : list of column names, optional
-            Features when the model is fitted here (default: every numeric
-            column but the target).
+            Features when the model is fitted here (default: by the roles).
         positive : label, optional
-            Positive class of a binary target. Default: the model's own
-            (``fit(positive=...)``), else scikit-learn's ``classes_[1]``.
+            As in ``confusion``.
         dropna : bool, default=False
 
         Returns
@@ -353,7 +311,7 @@ class BayesLogitAccessor:
         ----------
         target : column name
         features : list of column names, optional
-            Default: every numeric column but the target.
+            Default: every column the role rules make a feature.
         models : sequence of names/estimators, or mapping label -> model
             Names are built as in ``fit``; estimator instances are cloned
             for every fold. A named model that is not available in this
@@ -400,8 +358,8 @@ class BayesLogitAccessor:
     def cost_threshold(self, target, model, cost_fp, cost_fn, *, positive=None, dropna=False):
         """The probability threshold that minimises the expected cost of errors.
 
-        A row is called the positive class ``classes_[1]`` when its
-        probability is >= the threshold. Correct calls cost nothing.
+        A row is called the positive class when its probability is >= the
+        threshold. Correct calls cost nothing.
 
         Parameters
         ----------
@@ -409,12 +367,11 @@ class BayesLogitAccessor:
             Binary target.
         model : fitted estimator, name or unfitted estimator (fitted here)
         cost_fp : float > 0
-            Cost of calling a ``classes_[0]`` row positive.
+            Cost of calling a negative row positive.
         cost_fn : float > 0
-            Cost of calling a ``classes_[1]`` row negative.
+            Cost of calling a positive row negative.
         positive : label, optional
-            Positive class of a binary target. Default: the model's own
-            (``fit(positive=...)``), else scikit-learn's ``classes_[1]``.
+            As in ``confusion``.
         dropna : bool, default=False
 
         Returns
@@ -513,28 +470,9 @@ class BayesLogitAccessor:
         from .plotting import boundary_figure, require_matplotlib
 
         require_matplotlib()
-        level = check_level(level)
-        n_draws = check_positive_int("n_draws", n_draws, minimum=0)
-        grid_size = check_positive_int("grid_size", grid_size, minimum=10)
-        if target is None:
-            target = getattr(model, "target_name_", None)
-            if target is None:
-                raise ValueError(
-                    "pass target=: the model does not record its target column "
-                    "(models from df.bayeslogit.fit do)."
-                )
-        view = boundary_view(
-            self._df,
-            model,
-            x,
-            y,
-            target,
-            n_draws=n_draws,
-            level=level,
-            random_state=random_state,
-            grid_size=grid_size,
-            dropna=dropna,
-        )
+        options = {"n_draws": n_draws, "level": level, "random_state": random_state,
+                   "grid_size": grid_size, "dropna": dropna}  # fmt: skip
+        view = boundary_view(self._df, model, x, y, target, **checked_boundary_options(options))
         return boundary_figure(**view)
 
     def plot_calibration(self, target, model, bins=10, *, positive=None, dropna=False):
@@ -546,8 +484,7 @@ class BayesLogitAccessor:
         model : fitted estimator, name or unfitted estimator (fitted here)
         bins : int, default=10
         positive : label, optional
-            Positive class of a binary target. Default: the model's own
-            (``fit(positive=...)``), else scikit-learn's ``classes_[1]``.
+            As in ``confusion``.
         dropna : bool, default=False
 
         Returns

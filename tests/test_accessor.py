@@ -583,9 +583,7 @@ def test_tempered_by_name_and_as_the_default_doubt_model():
     m = df.bayeslogit.fit(TARGET, model="tempered")
     assert isinstance(m.estimator_, TemperedLogisticClassifier)
     out = df.bayeslogit.predict_table(m)
-    np.testing.assert_allclose(
-        out["prob_long_storage"], m.predict_proba(df)[:, 1], rtol=RTOL
-    )
+    np.testing.assert_allclose(out["prob_long_storage"], m.predict_proba(df)[:, 1], rtol=RTOL)
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         doubt = df.bayeslogit.doubtful_labels(TARGET)

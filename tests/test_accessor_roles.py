@@ -45,9 +45,7 @@ def _treatment_design(df, reference):
 
 def test_no_prior_equals_statsmodels_logit_with_treatment_coding(lots):
     sm = pytest.importorskip("statsmodels.api")
-    model = lots.bayeslogit.fit(
-        TARGET, [*NUMERIC, "orchard"], prior_scale=None, standardize=False
-    )
+    model = lots.bayeslogit.fit(TARGET, [*NUMERIC, "orchard"], prior_scale=None, standardize=False)
     reference = model.reference_levels_["orchard"]
     assert reference == lots["orchard"].value_counts().idxmax()
     X = _treatment_design(lots, reference)

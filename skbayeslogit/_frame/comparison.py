@@ -14,8 +14,8 @@ from .evaluation import scores
 from .fitting import class_codes, record
 from .model import FrameModel, labels_of
 from .orientation import positive_index
-from .rows import missing_policy, rows_used
 from .registry import MODELS, binary_only, build_estimator, model_label
+from .rows import missing_policy, rows_used
 
 _SCORES = ("accuracy", "log_loss", "brier", "ece")
 

@@ -59,8 +59,9 @@ def scores(P, codes, bins=10, positive=1):
     """Log loss, Brier score and ECE of probabilities P for class codes.
 
     Binary (two columns): Brier and ECE on the probability of the class
-    ``positive`` (an index, default the second). Multiclass: Brier summed over classes (range [0, 2]) and the
-    class-wise ECE (mean of the one-vs-rest ECEs).
+    ``positive`` (an index, default the second). Multiclass: Brier summed
+    over classes (range [0, 2]) and the class-wise ECE (mean of the
+    one-vs-rest ECEs).
     """
     n, K = P.shape
     rows = np.arange(n)
@@ -190,4 +191,6 @@ def cost_threshold_table(df, target, model, c_fp, c_fn, dropna, positive=None):
     out["cost"] = c_fp * out["fp"] + c_fn * out["fn"]
     out["cost_per_row"] = out["cost"] / len(p)
     attrs = {"cost_fp": c_fp, "cost_fn": c_fn}
-    return record(out, keep, **attrs, positive_class=classes[index], negative_class=classes[1 - index])
+    return record(
+        out, keep, **attrs, positive_class=classes[index], negative_class=classes[1 - index]
+    )

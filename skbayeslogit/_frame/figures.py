@@ -6,6 +6,8 @@
 import numpy as np
 import pandas as pd
 
+from .._checks.inputs import check_level
+from .arguments import check_positive_int
 from .fitting import class_codes, fitted_on_frame
 from .orientation import positive_index
 from .registry import is_fitted, model_label
@@ -103,9 +105,29 @@ def _design_row(model, held):
     return row.iloc[0].astype(np.float64)
 
 
+def checked_boundary_options(options):
+    """``plot_boundary``'s level, draw count and grid size, checked (one-line errors)."""
+    return {
+        **options,
+        "level": check_level(options["level"]),
+        "n_draws": check_positive_int("n_draws", options["n_draws"], minimum=0),
+        "grid_size": check_positive_int("grid_size", options["grid_size"], minimum=10),
+    }
+
+
 def boundary_view(df, model, x, y, target, *, n_draws, level, random_state, grid_size,
                   dropna):  # fmt: skip
-    """Everything ``plotting.boundary_figure`` draws, as keyword arguments."""
+    """Everything ``plotting.boundary_figure`` draws, as keyword arguments.
+
+    ``target`` None: the model's ``target_name_`` (set by ``fit``).
+    """
+    if target is None:
+        target = getattr(model, "target_name_", None)
+        if target is None:
+            raise ValueError(
+                "pass target=: the model does not record its target column "
+                "(models from df.bayeslogit.fit do)."
+            )
     model, X, labels, keep = fitted_on_frame(df, model, target, dropna, stacklevel=_CALLER + 1)
     classes, _ = class_codes(model, labels, target)
     if len(classes) != 2:
@@ -131,7 +153,11 @@ def boundary_view(df, model, x, y, target, *, n_draws, level, random_state, grid
     lines = None
     if n_draws and hasattr(model, "sample_coef"):
         lines = _draw_lines(model, x, y, _design_row(model, held), n_draws, random_state)
-    notes = ["other features held at their means (levels: the most frequent)"] if len(feats) > 2 else []
+    notes = (
+        ["other features held at their means (levels: the most frequent)"]
+        if len(feats) > 2
+        else []
+    )
     if lines is None and band is None:
         notes.append(f"{model_label(model)} has no posterior: no draws or band")
     return {

@@ -12,7 +12,8 @@ import numpy as np
 import pandas as pd
 
 from .columns import model_data, require_columns, resolve_features
-from .model import FrameModel, labels_of
+from .model import FrameModel
+from .posterior_view import labels_of
 from .registry import build_estimator, is_fitted
 from .rows import missing_policy, rows_used
 
@@ -46,6 +47,18 @@ def fit_on_frame(df, target, model, options, params):
     est = build_estimator(model, params, standardize=False)
     frame_model = FrameModel(est, target, **options)
     return frame_model.fit(df)
+
+
+def evidence_of_columns(model, df=None):
+    """A fitted model's column evidence (refitted on ``df`` when given), or a TypeError."""
+    if not hasattr(model, "column_evidence"):
+        raise TypeError(
+            f"{type(model).__name__} gives no column evidence; use a model from "
+            "df.bayeslogit.fit with a Gaussian posterior (laplace, probit)."
+        )
+    if isinstance(model, FrameModel):
+        return model.column_evidence(df)
+    return model.column_evidence()
 
 
 def fitted_on_frame(df, model, target, dropna, features=None, stacklevel=2, positive=None):
@@ -117,38 +130,3 @@ def record(result, keep, **attrs):
     result.attrs.update(attrs)
     result.attrs["rows_dropped"] = int((~keep).sum())
     return result
-
-
-def coefficient_table(model, level):
-    """Coefficient table on both scales; estimates only for a model without ``coef_table``.
-
-    Parameters
-    ----------
-    model : fitted estimator (bare or standardised)
-    level : float in (0, 1)
-        Credible level of the bounds, for models with ``coef_table``.
-
-    Returns
-    -------
-    pandas.DataFrame
-        Indexed by parameter (binary) or (class, parameter).
-    """
-    if hasattr(model, "coef_table"):
-        return model.coef_table(level)
-    inner = getattr(model, "estimator_", model)
-    names = list(model.feature_names_in_)
-    classes = [str(c) for c in model.classes_]
-    coef_std = np.atleast_2d(inner.coef_)
-    coef_orig = np.atleast_2d(model.coef_)
-    int_std = np.atleast_1d(inner.intercept_)
-    int_orig = np.atleast_1d(model.intercept_)
-    rows = []
-    for k in range(coef_std.shape[0]):
-        label = classes[1] if coef_std.shape[0] == 1 else classes[k]
-        for j, name in enumerate(names):
-            rows.append((label, name, coef_std[k, j], coef_orig[k, j]))
-        rows.append((label, "intercept", int_std[k], int_orig[k]))
-    table = pd.DataFrame(rows, columns=["class", "parameter", "estimate", "estimate_original"])
-    if coef_std.shape[0] == 1:
-        return table.drop(columns="class").set_index("parameter")
-    return table.set_index(["class", "parameter"])

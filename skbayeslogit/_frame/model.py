@@ -19,7 +19,8 @@ from .._checks.inputs import check_level
 from .columns import is_numeric_dtype, require_columns
 from .encoding import count_unseen, encode_frame
 from .errors import FrameInputError
-from .orientation import oriented_bounds, oriented_coefficients, probability_columns
+from .orientation import probability_columns
+from .posterior_view import FramePosterior, as_frame, final_has, labels_of
 from .roles import assign_roles
 from .rows import missing_policy, rows_used
 
@@ -33,14 +34,6 @@ _PASSED_ON = frozenset(
 )  # fmt: skip
 
 
-def _final_has(name):
-    def check(self):
-        final = self.pipeline_[-1] if hasattr(self, "pipeline_") else self.estimator
-        return hasattr(final, name)
-
-    return check
-
-
 def default_positive(col):
     """The second of two classes in scikit-learn's (sorted) order, or None."""
     labels = pd.unique(col.dropna())
@@ -52,7 +45,7 @@ def default_positive(col):
         return sorted(labels, key=str)[-1]
 
 
-class FrameModel(ClassifierMixin, BaseEstimator):
+class FrameModel(FramePosterior, ClassifierMixin, BaseEstimator):
     """Column roles, encoding and a classifier, fitted on one table.
 
     Fit it on a DataFrame that holds the target column; predict from any
@@ -170,7 +163,7 @@ class FrameModel(ClassifierMixin, BaseEstimator):
         """
         if y is not None or sample_weight is not None:
             raise TypeError("FrameModel takes labels and weights from the table's columns.")
-        df = _as_frame(X)
+        df = as_frame(X)
         policy = missing_policy(self.missing)
         roles = self.decide_roles(df)
         _check_numbers(df, roles.numeric)
@@ -273,7 +266,7 @@ class FrameModel(ClassifierMixin, BaseEstimator):
         pandas.DataFrame of float64, columns ``feature_names_out_``
         """
         check_is_fitted(self, "pipeline_")
-        df = _as_frame(X)
+        df = as_frame(X)
         feats = list(self.feature_names_in_)
         require_columns(df, feats)
         policy = "impute" if self.missing == "impute" else "error"
@@ -293,7 +286,7 @@ class FrameModel(ClassifierMixin, BaseEstimator):
             Column -> count, only the columns with any.
         """
         check_is_fitted(self, "pipeline_")
-        return count_unseen(self.pipeline_[0], _as_frame(X))
+        return count_unseen(self.pipeline_[0], as_frame(X))
 
     # -- prediction ------------------------------------------------------------------
     def predict_proba(self, X):
@@ -304,47 +297,10 @@ class FrameModel(ClassifierMixin, BaseEstimator):
         """The most probable class of each row."""
         return self.pipeline_[-1].predict(self.transform(X))
 
-    @available_if(_final_has("decision_function"))
+    @available_if(final_has("decision_function"))
     def decision_function(self, X):
         """The estimator's decision function on the encoded rows."""
         return self.pipeline_[-1].decision_function(self.transform(X))
-
-    @available_if(_final_has("predict_interval"))
-    def predict_interval(self, X, level=0.9):
-        """Credible bounds of the class probabilities.
-
-        Returns
-        -------
-        lower, upper : ndarray
-            Binary: shape (n,), bounds of P(``positive_`` | x). Multiclass:
-            shape (n, K), columns in ``classes_`` order.
-        """
-        lower, upper = self.pipeline_[-1].predict_interval(self.transform(X), level=level)
-        return oriented_bounds(lower, upper, self.positive_index_)
-
-    @available_if(_final_has("logit_moments"))
-    def logit_moments(self, X):
-        """Posterior mean and variance of the latent linear predictor.
-
-        Binary: of the log-odds (or probit index) of ``positive_``.
-        """
-        mean, var = self.pipeline_[-1].logit_moments(self.transform(X))
-        if self.positive_index_ == 0:
-            mean = -np.asarray(mean)
-        return mean, var
-
-    @available_if(_final_has("label_doubt"))
-    def label_doubt(self, X, y):
-        """The estimator's per-row doubt about the recorded labels ``y``."""
-        return self.pipeline_[-1].label_doubt(self.transform(X), y)
-
-    @available_if(_final_has("sample_coef"))
-    def sample_coef(self, n, random_state=None):
-        """Posterior draws, columns in the order of ``feature_names_out_`` then intercept(s).
-
-        Binary draws are of the log-odds of ``classes_[1]``, as ``coef_``.
-        """
-        return self.pipeline_[-1].sample_coef(n, random_state=random_state)
 
     def probability_table(self, X, level=0.9):
         """Probabilities, credible bounds and the predicted label of each row.
@@ -364,7 +320,7 @@ class FrameModel(ClassifierMixin, BaseEstimator):
             with a level not seen in fitting.
         """
         level = check_level(level)
-        df = _as_frame(X)
+        df = as_frame(X)
         P = self.predict_proba(df)
         bounds = None
         if hasattr(self, "predict_interval"):
@@ -375,77 +331,12 @@ class FrameModel(ClassifierMixin, BaseEstimator):
         out.attrs = {"level": level, "unseen_levels": self.unseen_levels(df)}
         return out
 
-    # -- the posterior -----------------------------------------------------------------
-    def coef_table(self, level=0.9):
-        """Coefficients of the encoded columns (``column=level``), on both scales.
-
-        Binary: of the log-odds of ``positive_`` (signs and bounds flipped
-        when it is ``classes_[0]``). Without a posterior (an estimator
-        without ``coef_table``), the estimates only.
-
-        Returns
-        -------
-        pandas.DataFrame
-            See :meth:`StandardizedClassifier.coef_table`;
-            ``attrs["positive_class"]`` names the class (binary).
-        """
-        from .fitting import coefficient_table
-
-        check_is_fitted(self, "pipeline_")
-        table = coefficient_table(self.pipeline_[-1], check_level(level))
-        return oriented_coefficients(table, self.classes_, self.positive_index_)
-
-    @available_if(_final_has("column_evidence"))
-    def column_evidence(self, X=None):
-        """Bayes factor of "no effect" per ORIGINAL column (levels grouped).
-
-        Parameters
-        ----------
-        X : pandas.DataFrame, optional
-            None: the closed-form Savage-Dickey ratio of the fitted posterior.
-            A table (with the target, and the weight column if any): the
-            ratio of Laplace evidences refitted on its rows, one fit per
-            column.
-
-        Returns
-        -------
-        pandas.DataFrame
-            Indexed by original column: ``n_parameters``,
-            ``log10_bf_no_effect`` (positive favours no effect),
-            ``evidence``, ``method``.
-        """
-        check_is_fitted(self, "pipeline_")
-        final = self.pipeline_[-1]
-        if X is None:
-            return final.column_evidence(self.groups_)
-        df = _as_frame(X)
-        policy = missing_policy(self.missing)
-        keep = rows_used(df, list(self.feature_names_in_), self.target, policy, stacklevel=3)
-        used = df if keep.all() else df.loc[keep]
-        w = None if self.weight_column_ is None else used[self.weight_column_].to_numpy(float)
-        Z = self.transform(used)
-        return final.column_evidence(self.groups_, Z, labels_of(used[self.target]), w)
-
 
 def _prior_scale(estimator):
     """The estimator's ``prior_scale`` parameter (also inside a wrapper); 1.0 if none."""
     params = estimator.get_params()
     found = [v for k, v in params.items() if k == "prior_scale" or k.endswith("__prior_scale")]
     return found[0] if found else 1.0
-
-
-def _as_frame(X):
-    if not isinstance(X, pd.DataFrame):
-        raise TypeError(
-            f"a FrameModel reads columns by name: pass a pandas DataFrame, not {type(X).__name__}."
-        )
-    return X
-
-
-def labels_of(col):
-    """The label column as an array: object for text and categories, else its own dtype."""
-    is_text = pd.api.types.is_string_dtype(col.dtype) or isinstance(col.dtype, pd.CategoricalDtype)
-    return np.asarray(col.to_numpy(dtype=object) if is_text else col.to_numpy())
 
 
 def _check_numbers(df, numeric):
