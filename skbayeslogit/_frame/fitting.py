@@ -13,7 +13,9 @@ import pandas as pd
 
 from .columns import model_data, require_columns, resolve_features
 from .model import FrameModel
-from .posterior_view import labels_of
+from .posterior_view import coefficient_table, labels_of
+
+__all__ = ["coefficient_table", "evidence_of_columns", "fit_on_frame", "fitted_on_frame"]
 from .registry import build_estimator, is_fitted
 from .rows import missing_policy, rows_used
 
