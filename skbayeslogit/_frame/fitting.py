@@ -45,7 +45,7 @@ def fit_on_frame(df, target, model, options, params):
     features = options.get("features")
     if features is not None:
         options["features"] = resolve_features(df, target, features)
-    require_columns(df, [target])
+    require_columns(df, [target, *(options.get("features") or [])])
     est = build_estimator(model, params, standardize=False)
     frame_model = FrameModel(est, target, **options)
     return frame_model.fit(df)
