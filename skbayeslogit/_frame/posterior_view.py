@@ -84,12 +84,13 @@ class FramePosterior:
         return self.pipeline_[-1].sample_coef(n, random_state=random_state)
 
     # -- the posterior -----------------------------------------------------------------
+    @available_if(final_has("coef_table"))
     def coef_table(self, level=0.9):
         """Coefficients of the encoded columns (``column=level``), on both scales.
 
         Binary: of the log-odds of ``positive_`` (signs and bounds flipped
-        when it is ``classes_[0]``). Without a posterior (an estimator
-        without ``coef_table``), the estimates only.
+        when it is ``classes_[0]``). Only for an estimator with a posterior;
+        :func:`coefficient_table` gives the estimates of any linear one.
 
         Returns
         -------
@@ -98,7 +99,7 @@ class FramePosterior:
             ``attrs["positive_class"]`` names the class (binary).
         """
         check_is_fitted(self, "pipeline_")
-        table = coefficient_table(self.pipeline_[-1], check_level(level))
+        table = self.pipeline_[-1].coef_table(check_level(level))
         return oriented_coefficients(table, self.classes_, self.positive_index_)
 
     @available_if(final_has("column_evidence"))
@@ -138,19 +139,20 @@ def coefficient_table(model, level):
 
     Parameters
     ----------
-    model : fitted estimator (bare or standardised)
+    model : fitted estimator (bare or standardised) or FrameModel
     level : float in (0, 1)
         Credible level of the bounds, for models with ``coef_table``.
 
     Returns
     -------
     pandas.DataFrame
-        Indexed by parameter (binary) or (class, parameter).
+        Indexed by parameter (binary) or (class, parameter); a FrameModel's
+        binary table is of its positive class.
     """
     if hasattr(model, "coef_table"):
         return model.coef_table(level)
     inner = getattr(model, "estimator_", model)
-    names = list(model.feature_names_in_)
+    names = list(getattr(model, "feature_names_out_", model.feature_names_in_))
     classes = [str(c) for c in model.classes_]
     coef_std = np.atleast_2d(inner.coef_)
     coef_orig = np.atleast_2d(model.coef_)
@@ -163,6 +165,8 @@ def coefficient_table(model, level):
             rows.append((label, name, coef_std[k, j], coef_orig[k, j]))
         rows.append((label, "intercept", int_std[k], int_orig[k]))
     table = pd.DataFrame(rows, columns=["class", "parameter", "estimate", "estimate_original"])
-    if coef_std.shape[0] == 1:
-        return table.drop(columns="class").set_index("parameter")
-    return table.set_index(["class", "parameter"])
+    if coef_std.shape[0] > 1:
+        return table.set_index(["class", "parameter"])
+    table = table.drop(columns="class").set_index("parameter")
+    index = getattr(model, "positive_index_", None)
+    return table if index is None else oriented_coefficients(table, model.classes_, index)
