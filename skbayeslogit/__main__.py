@@ -1,7 +1,5 @@
 """``python -m skbayeslogit``: the same command line as ``skbayeslogit``."""
 
-import sys
+from .cli import run
 
-from .cli import main
-
-sys.exit(main())
+run()

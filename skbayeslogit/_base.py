@@ -13,16 +13,18 @@ Two bases live here:
     The Laplace-approximation machinery for models fitted by the shared
     Newton solver (the Laplace logistic and the probit classifiers): MAP fit,
     ``prior_scale="auto"`` by the Laplace evidence (``_fit.evidence``), the
-    identification checks (``_fit.identification``) and the posterior API
-    (``_predictive``). A subclass supplies the likelihood and the binary
-    predictive through hooks.
+    identification checks (``_fit.identification``), the posterior API
+    (``_predictive``) and the approximation self-check (``_approximation``).
+    A subclass supplies the likelihood and the binary predictive through
+    hooks.
 """
 
 import numpy as np
 from sklearn.base import BaseEstimator, ClassifierMixin
 from sklearn.utils.multiclass import check_classification_targets
-from sklearn.utils.validation import _check_sample_weight, check_is_fitted, validate_data
+from sklearn.utils.validation import check_is_fitted, validate_data
 
+from ._approximation import ApproximationCheckMixin
 from ._checks.inputs import (
     as_labels,
     check_magnitude,
@@ -30,6 +32,7 @@ from ._checks.inputs import (
     plain,
     reject_non_numeric_frame,
     reject_unusable_array,
+    row_weights,
 )
 from ._checks.params import (
     Boolean,
@@ -113,13 +116,8 @@ class LinearClassifierBase(ClassifierMixin, BaseEstimator):
             )
         if self.binary_only and n_classes > 2:
             raise ValueError("Only binary classification is supported.")
-        if sample_weight is None:
-            w = np.ones(X.shape[0])
-        else:
-            w = _check_sample_weight(sample_weight, X, dtype=np.float64, ensure_non_negative=True)
-            w = np.array(w, dtype=np.float64)  # our own copy, whatever was passed
-            if not np.all(np.isfinite(w)):
-                raise ValueError("sample_weight contains NaN or infinity.")
+        w = row_weights(sample_weight, X)
+        if sample_weight is not None:
             if w.sum() <= 0:
                 raise ValueError("sample_weight sums to zero; at least one row needs weight > 0.")
             present = np.unique(y_codes[w > 0])
@@ -223,7 +221,9 @@ def free_parameter_map(design, slope_prior, intercept_prior):
     return design.layout.free_map(slope_prior, intercept_prior)
 
 
-class GaussianPosteriorClassifier(PosteriorPredictiveMixin, LinearClassifierBase):
+class GaussianPosteriorClassifier(
+    ApproximationCheckMixin, PosteriorPredictiveMixin, LinearClassifierBase
+):
     """Base of the models fitted by Newton MAP plus a Laplace posterior.
 
     Subclasses define ``_make_likelihood(n_classes)``, ``_binary_decision``

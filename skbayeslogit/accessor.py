@@ -26,6 +26,7 @@ employment) they do not replace review by someone who knows the domain.
 import pandas as pd
 
 from ._checks.inputs import check_level
+from ._frame.approximation import approximation_check
 from ._frame.arguments import check_cost, check_positive_int, check_probability
 from ._frame.columns import DroppedRowsWarning
 from ._frame.comparison import compare_models
@@ -403,6 +404,25 @@ class BayesLogitAccessor:
         c_fp = check_cost("cost_fp", cost_fp)
         c_fn = check_cost("cost_fn", cost_fn)
         return cost_threshold_table(self._df, target, model, c_fp, c_fn, dropna, positive)
+
+    def check_approximation(self, target, model="laplace", *, dropna=False, **options):
+        """How far the model's Laplace posterior is from the exact one on this frame's rows.
+
+        Parameters
+        ----------
+        target : column name
+        model : fitted estimator, name or unfitted estimator (fitted here), default="laplace"
+            With a Laplace posterior ("laplace", "probit"); a standardised one
+            (``fit``'s default) is checked on its standardised features.
+        dropna : bool, default=False
+        **options : ``n_draws``, ``random_state``, ``refine``, as in the estimator's method.
+
+        Returns
+        -------
+        ApproximationCheck
+            A standardised model's corrected ``coef_table`` is on that scale.
+        """
+        return approximation_check(self._df, target, model, dropna, options)
 
     # -- plots ----------------------------------------------------------------------
     def plot_coefficients(self, model, level=0.9, *, include_intercept=False):

@@ -1,19 +1,48 @@
 """Command line: ``skbayeslogit report`` and ``skbayeslogit score``.
 
 Errors are one line on stderr and exit code 2 (``--debug`` shows the
-traceback); progress goes to stderr unless ``--quiet``.
+traceback); progress goes to stderr unless ``--quiet``. Ctrl-C exits with
+130 and SIGTERM with 143, one line and no traceback, and leave no
+half-written output: ``report --out`` writes a whole folder or none, and
+``score --out`` a whole file or none.
 """
 
 import argparse
+import os
 import sys
 import traceback
-from pathlib import Path
+from contextlib import nullcontext
+
+from ._frame.command_inputs import (
+    CommandError,
+    check_columns,
+    check_costs,
+    check_folds,
+    check_level,
+    check_models,
+    check_seed,
+    read_table,
+    split_names,
+)
+from ._output.interrupts import (
+    EXIT_INTERRUPTED,
+    EXIT_TERMINATED,
+    Terminated,
+    exit_quietly_on_signals,
+    terminate_as_exception,
+)
+from ._output.run_folder import OutputError
 
 EXIT_USAGE = 2
 
-
-class CommandError(Exception):
-    """A problem with the user's input, reported as one line."""
+MODEL_FILES = (
+    "A model file (model_<name>.skops, written by 'report --out') holds a fitted model "
+    "with its feature list, target name, model name and the skbayeslogit version that "
+    "wrote it. It is read without running code from the file: only the types of this "
+    "package, numpy, scipy and scikit-learn are accepted. Still, load only model files "
+    "from sources you trust. Older pickle/joblib model files can run code when loaded and "
+    "are refused unless --trust-pickle is given."
+)
 
 
 def _parser():
@@ -23,7 +52,30 @@ def _parser():
         "for a classification table.",
     )
     sub = parser.add_subparsers(dest="command", required=True)
+    _report_parser(sub)
+    sco = sub.add_parser(
+        "score",
+        help="probabilities, credible bounds and labels for new rows from a saved model",
+        description="Score new rows with a model saved by 'report --out'. " + MODEL_FILES,
+    )
+    sco.add_argument("model_file", help="a model_<name>.skops file written by 'report --out'")
+    sco.add_argument("file", help="CSV file of new rows with the model's feature columns")
+    sco.add_argument("--level", type=float, default=0.9, help="credible level (default 0.9)")
+    sco.add_argument(
+        "--out", help="write the predictions to this CSV file, whole or not at all "
+        "(default: print them)"
+    )  # fmt: skip
+    sco.add_argument(
+        "--trust-pickle",
+        action="store_true",
+        help="also load an old pickle/joblib model file; loading a pickle runs any code it "
+        "holds, so use this only for a file from a source you trust",
+    )
+    _common(sco)
+    return parser
 
+
+def _report_parser(sub):
     rep = sub.add_parser(
         "report",
         help="fit, compare and summarise the models on a CSV file (no file: the demo)",
@@ -38,29 +90,26 @@ def _parser():
     rep.add_argument(
         "--models",
         default="laplace,probit,tempered",
-        help="comma-separated: laplace,probit,tempered",
+        help="comma-separated: laplace,probit,tempered (probit: two classes only)",
     )
     rep.add_argument("--level", type=float, default=0.9, help="credible level (default 0.9)")
     rep.add_argument("--cost-fp", type=float, help="cost of a false positive")
     rep.add_argument("--cost-fn", type=float, help="cost of a false negative")
     rep.add_argument("--cv", type=int, default=5, help="cross-validation folds (default 5)")
-    rep.add_argument("--seed", type=int, default=0, help="seed for the folds and the demo")
-    rep.add_argument("--out", help="directory for CSV tables, figures, models and report.html")
+    rep.add_argument(
+        "--seed", type=int, default=0,
+        help="seed of every random draw: the folds, the posterior draws and the demo",
+    )  # fmt: skip
+    rep.add_argument(
+        "--out",
+        help="folder for CSV tables, figures, model files, report.html and manifest.json; "
+        "written whole at the end. A folder an earlier report wrote is replaced whole; any "
+        "other non-empty folder is refused. " + MODEL_FILES,
+    )
     rep.add_argument(
         "--dropna", action="store_true", help="leave out rows with missing values (say how many)"
     )
     _common(rep)
-
-    sco = sub.add_parser(
-        "score",
-        help="probabilities, credible bounds and labels for new rows from a saved model",
-    )
-    sco.add_argument("model_file", help="a model_*.joblib written by 'report --out'")
-    sco.add_argument("file", help="CSV file of new rows with the model's feature columns")
-    sco.add_argument("--level", type=float, default=0.9, help="credible level (default 0.9)")
-    sco.add_argument("--out", help="write the predictions to this CSV (default: print them)")
-    _common(sco)
-    return parser
 
 
 def _common(p):
@@ -68,121 +117,142 @@ def _common(p):
     p.add_argument("--debug", action="store_true", help="show tracebacks on errors")
 
 
-def _read_csv(path):
-    import pandas as pd
-
-    path = Path(path)
-    if not path.is_file():
-        raise CommandError(f"file not found: {path}")
-    try:
-        df = pd.read_csv(path)
-    except (pd.errors.ParserError, UnicodeDecodeError, pd.errors.EmptyDataError) as exc:
-        raise CommandError(f"cannot read {path} as CSV: {exc}") from exc
-    if len(df) == 0:
-        # Otherwise every column reads as text and the error blames the dtypes.
-        raise CommandError(f"{path} has a header but no data rows")
-    return df
-
-
-def _split(text):
-    return [t.strip() for t in text.split(",") if t.strip()] if text else None
-
-
-def _check_columns(df, names, what):
-    missing = [c for c in names if c not in df.columns]
-    if missing:
-        raise CommandError(
-            f"{what} column(s) not in the file: {', '.join(missing)}; "
-            f"available: {', '.join(map(str, df.columns))}"
-        )
-
-
-def _cmd_report(args, say):
+def _report_input(args, say):
+    """The data, target, a description and the manifest's record of the input."""
     from .datasets import make_orchard_lots
-    from .report import build_report, render_text, write_outputs
+    from .report import frame_digest
 
     if args.file is None:
         df = make_orchard_lots(400, random_state=args.seed)
-        target = args.target or "storage_grade"
+        say("no file given: running on the built-in demo data (invented orchard intake log)")
         source = (
             "DEMO DATA: an invented orchard intake log of 400 apple lots "
             f"(skbayeslogit.datasets, seed {args.seed}); no file given"
         )
-        say("no file given: running on the built-in demo data (invented orchard intake log)")
-    else:
-        df = _read_csv(args.file)
-        if not args.target:
-            raise CommandError("--target is required with a file: name the label column.")
-        target = args.target
-        source = f"file {args.file} ({len(df)} rows)"
-    _check_columns(df, [target], "target")
-    features = _split(args.features)
-    if features:
-        _check_columns(df, features, "feature")
-    models = _split(args.models)
-    if not 0 < args.level < 1:
-        raise CommandError(f"--level must be between 0 and 1; got {args.level}")
-    report = build_report(
-        df,
-        target,
-        features=features,
-        models=models,
-        level=args.level,
-        cost_fp=args.cost_fp,
-        cost_fn=args.cost_fn,
-        cv=args.cv,
-        random_state=args.seed,
-        source=source,
-        dropna=args.dropna,
-        progress=say,
-    )
-    sys.stdout.write(render_text(report))
-    if args.out:
-        say(f"writing tables, figures, models and report.html to {args.out}")
-        written = write_outputs(report, df, args.out)
-        sys.stdout.write(
-            f"\nwrote {len(written['csv'])} tables, {len(written['png'])} figures, "
-            f"{len(written['model'])} models and {written['html'][0]}\n"
+        info = {"source": "demo", "rows": len(df), "sha256_of_csv": frame_digest(df)}
+        return df, args.target or "storage_grade", source, info
+    df, digest = read_table(args.file)
+    if not args.target:
+        raise CommandError("--target is required with a file: name the label column.")
+    info = {"source": os.path.abspath(args.file), "rows": len(df), "sha256": digest}
+    return df, args.target, f"file {args.file} ({len(df)} rows)", info
+
+
+def _report_options(args):
+    """The report's options, checked before any work; what the manifest records."""
+    check_level(args.level)
+    check_costs(args.cost_fp, args.cost_fn)
+    check_folds(args.cv)
+    check_seed(args.seed)
+    return {
+        "file": args.file,
+        "target": args.target,
+        "features": split_names(args.features, "--features"),
+        "models": check_models(split_names(args.models, "--models")),
+        "level": args.level,
+        "cost_fp": args.cost_fp,
+        "cost_fn": args.cost_fn,
+        "cv": args.cv,
+        "seed": args.seed,
+        "dropna": args.dropna,
+        "out": args.out,
+    }
+
+
+def _cmd_report(args, say):
+    from .report import build_report, render_text, write_outputs
+
+    options = _report_options(args)
+    df, target, source, input_info = _report_input(args, say)
+    check_columns(df, [target], "target")
+    if options["features"]:
+        check_columns(df, options["features"], "feature")
+    # The output folder is checked, and its staging folder made, before the work.
+    with _run_folder(args.out) or nullcontext() as folder:
+        report = build_report(
+            df,
+            target,
+            features=options["features"],
+            models=options["models"],
+            level=args.level,
+            cost_fp=args.cost_fp,
+            cost_fn=args.cost_fn,
+            cv=args.cv,
+            random_state=args.seed,
+            source=source,
+            dropna=args.dropna,
+            progress=say,
         )
+        sys.stdout.write(render_text(report))
+        if args.out:
+            say(f"writing tables, figures, models and report.html to {args.out}")
+            written = write_outputs(report, df, folder, options=options, input_info=input_info)
+            sys.stdout.write(
+                f"\nwrote {len(written['csv'])} tables, {len(written['png'])} figures, "
+                f"{len(written['model'])} models and {written['html'][0]}\n"
+            )
     return 0
 
 
-def _cmd_score(args, say):
-    import joblib
-    import numpy as np
+def _run_folder(out):
+    if out is None:
+        return None
+    from ._output.run_folder import RunFolder
 
-    path = Path(args.model_file)
-    if not path.is_file():
-        raise CommandError(f"model file not found: {path}")
-    try:
-        saved = joblib.load(path)
-    except Exception as exc:  # noqa: BLE001 - any unpickling failure is the same user error
-        raise CommandError(f"cannot load a model from {path}: {exc}") from exc
-    if not isinstance(saved, dict) or "model" not in saved:
-        raise CommandError(f"{path} is not a model file written by 'skbayeslogit report --out'")
+    return RunFolder(out, option="--out")
+
+
+def _cmd_score(args, say):
+    from ._output.atomic_file import check_file_target, write_atomically
+    from ._output.model_file import load_model_file
+
+    check_level(args.level)
+    if args.out:
+        check_file_target(args.out)
+    df, _ = read_table(args.file)
+    saved = load_model_file(args.model_file, trust_pickle=args.trust_pickle)
     model, features = saved["model"], saved["features"]
-    df = _read_csv(args.file)
     missing = [c for c in features if c not in df.columns]
     if missing:
         raise CommandError(
             f"the new rows lack the model's feature column(s): {', '.join(missing)} "
             f"(the model uses {', '.join(features)})"
         )
-    if not 0 < args.level < 1:
-        raise CommandError(f"--level must be between 0 and 1; got {args.level}")
-    from . import accessor  # noqa: F401
+    from . import __version__, accessor  # noqa: F401
 
-    say(f"scoring {len(df)} rows with the {saved.get('model_name', 'saved')} model")
+    if saved["skbayeslogit_version"] != __version__:
+        say(f"the model file was written by skbayeslogit {saved['skbayeslogit_version']}")
+    say(f"scoring {len(df)} rows with the {saved['model_name']} model")
     table = df.bayeslogit.predict_table(model, level=args.level)
-    new_cols = [c for c in table.columns if c not in df.columns]
-    out = table[new_cols]
+    out = table[[c for c in table.columns if c not in df.columns]]
     if args.out:
-        out.to_csv(args.out, index=False)
+        write_atomically(args.out, lambda tmp: out.to_csv(tmp, index=False))
         say(f"wrote {len(out)} predictions to {args.out}")
     else:
-        with np.printoptions(precision=4):
-            sys.stdout.write(out.to_string(index=False, float_format=lambda v: f"{v:.4f}") + "\n")
+        sys.stdout.write(out.to_string(index=False, float_format=lambda v: f"{v:.4f}") + "\n")
     return 0
+
+
+def _error(args, exc):
+    if args.debug:
+        traceback.print_exc()
+    if isinstance(exc, KeyError) and exc.args:
+        message = exc.args[0]
+    elif isinstance(exc, OSError) and exc.strerror:
+        where = f": {exc.filename}" if exc.filename else ""
+        message = f"{exc.strerror}{where}"
+    else:
+        message = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
+    print(f"skbayeslogit: error: {message}", file=sys.stderr)
+    return EXIT_USAGE
+
+
+def _stopped(args, what, code):
+    if args.debug:
+        traceback.print_exc()
+    left = "; nothing was left half-written" if getattr(args, "out", None) else ""
+    print(f"skbayeslogit: stopped by {what}{left}", file=sys.stderr, flush=True)
+    return code
 
 
 def main(argv=None):
@@ -193,17 +263,35 @@ def main(argv=None):
         if not args.quiet:
             print(f"[skbayeslogit] {message}", file=sys.stderr, flush=True)
 
+    command = _cmd_report if args.command == "report" else _cmd_score
     try:
-        if args.command == "report":
-            return _cmd_report(args, say)
-        return _cmd_score(args, say)
-    except (CommandError, ValueError, KeyError, TypeError, ImportError) as exc:
-        if args.debug:
-            traceback.print_exc()
-        message = exc.args[0] if isinstance(exc, KeyError) and exc.args else exc
-        print(f"skbayeslogit: error: {message}", file=sys.stderr)
-        return EXIT_USAGE
+        with terminate_as_exception():
+            return command(args, say)
+    except KeyboardInterrupt:
+        return _stopped(args, "Ctrl-C", EXIT_INTERRUPTED)
+    except Terminated:
+        return _stopped(args, "SIGTERM", EXIT_TERMINATED)
+    except (CommandError, OutputError, ValueError, KeyError, TypeError, ImportError,
+            OSError) as exc:  # fmt: skip
+        return _error(args, exc)
+
+
+def run():
+    """The console script: :func:`main`, then exit.
+
+    After an interruption the process ends at once: worker threads may still
+    be finishing a block of rows, and a second signal while the interpreter
+    waited for them would print a traceback. A signal during the shutdown
+    after a finished command ends the process quietly too.
+    """
+    code = main()
+    exit_quietly_on_signals()
+    if code in (EXIT_INTERRUPTED, EXIT_TERMINATED):
+        sys.stdout.flush()
+        sys.stderr.flush()
+        os._exit(code)
+    sys.exit(code)
 
 
 if __name__ == "__main__":  # pragma: no cover
-    sys.exit(main())
+    run()

@@ -23,8 +23,9 @@ from sklearn.utils.multiclass import type_of_target
 from . import accessor  # noqa: F401  (registers df.bayeslogit)
 from ._frame.columns import MissingValues, resolve_features
 from ._frame.fitting import coefficient_table
-from ._frame.registry import MODELS, available_models, binary_only, model_title
+from ._frame.registry import MODELS, available_models, binary_only, make_model, model_title
 from ._frame.report_files import write_files
+from ._output.run_folder import RunFolder, sha256_bytes
 
 CAUTION = (
     "Caution: these probabilities, intervals and label checks are a statistical "
@@ -100,7 +101,9 @@ def build_report(
     cv : int >= 2
         Cross-validation folds of the comparison.
     random_state : int
-        Seeds the folds.
+        Seeds every random draw: the folds, and the ``random_state`` of each
+        model that takes one (its posterior draws, hence the multiclass
+        credible bounds).
     n_cases : int
         How many rows to show predictions for.
     top_doubtful : int
@@ -122,13 +125,14 @@ def build_report(
     notes = []
     df, feats = _used_rows(df, target, features, dropna, notes)
     n_classes = _count_classes(df, target)
-    chosen = _chosen_models(models, n_classes, notes)
+    chosen = _chosen_models(models, n_classes, target, notes)
     primary = chosen[0]
     acc = df.bayeslogit
     _progress(progress, f"cross-validating {', '.join(chosen)} ({cv} folds)...")
-    comparison = acc.compare(target, feats, models=chosen, cv=cv, random_state=random_state)
+    seeded = {name: make_model(name, **_seed_params(name, random_state)) for name in chosen}
+    comparison = acc.compare(target, feats, models=seeded, cv=cv, random_state=random_state)
     fitted, coefficients, calibration, evidence = _fit_models(
-        df, target, feats, chosen, level, progress
+        df, target, feats, chosen, level, progress, random_state
     )
     primary_model = fitted[primary]
     robust = "tempered" if "tempered" in fitted else primary
@@ -175,7 +179,18 @@ def _used_rows(df, target, features, dropna, notes):
                 f"{missing.listing('{column} ({count})')}. Drop or impute them, or pass "
                 "--dropna to leave those rows out."
             )
+        empty = [c for c, k in missing.per_column.items() if k == len(df)]
+        if empty:
+            raise ValueError(
+                f"column(s) {', '.join(map(repr, empty))} hold no values at all, so --dropna "
+                "would leave no rows; leave them out of --features or fill them."
+            )
         df = df.dropna(subset=used)
+        if len(df) == 0:
+            raise ValueError(
+                f"every one of the {missing.n_total} rows has a missing value (by column: "
+                f"{missing.listing('{column} ({count})')}), so --dropna leaves no rows."
+            )
         notes.append(f"{missing.n_rows} row(s) with missing values were left out (--dropna).")
     return df, feats
 
@@ -192,26 +207,40 @@ def _count_classes(df, target):
     return len(labels)
 
 
-def _chosen_models(models, n_classes, notes):
+def _chosen_models(models, n_classes, target, notes):
     """The requested models that can run here, in order; the others are noted."""
-    chosen = []
+    models = [] if models is None else list(models)
+    if not models:
+        raise ValueError(f"no model requested; choose one or more of {', '.join(MODELS)}.")
+    chosen, skipped = [], []
     available = available_models()
     for name in models:
         if name not in MODELS:
             raise ValueError(f"unknown model {name!r}; choose from {', '.join(MODELS)}.")
         if name not in available:
-            notes.append(f"model {name!r} is not available in this installation; skipped.")
-            continue
-        if n_classes > 2 and binary_only(name):
-            notes.append(f"{name} is binary only; skipped for this multiclass target.")
-            continue
-        chosen.append(name)
+            skipped.append(f"model {name!r} is not available in this installation")
+        elif n_classes > 2 and binary_only(name):
+            skipped.append(
+                f"{name} is binary-only and the target {target!r} has {n_classes} classes"
+            )
+        else:
+            chosen.append(name)
+    notes += [f"{why}; skipped." for why in skipped]
     if not chosen:
-        raise ValueError("none of the requested models can be fitted to this target.")
+        others = [m for m in available if m not in models and not binary_only(m)]
+        hint = f"; try --models {','.join(others)}" if n_classes > 2 and others else ""
+        reasons = "; ".join(skipped)
+        raise ValueError(f"none of the requested models can be fitted: {reasons}{hint}.")
     return chosen
 
 
-def _fit_models(df, target, feats, chosen, level, progress):
+def _seed_params(name, random_state):
+    """``random_state`` for the models that draw at random, nothing for the others."""
+    takes_seed = "random_state" in make_model(name).get_params()
+    return {"random_state": random_state} if takes_seed else {}
+
+
+def _fit_models(df, target, feats, chosen, level, progress, random_state):
     """Each model fitted on all rows: models, coefficients, calibration, evidence."""
     acc = df.bayeslogit
     fitted, coefficients, calibration = {}, {}, {}
@@ -219,7 +248,7 @@ def _fit_models(df, target, feats, chosen, level, progress):
     for name in chosen:
         _progress(progress, f"fitting {name} on all {len(df)} rows...")
         started = time.perf_counter()
-        model = acc.fit(target, feats, model=name)
+        model = acc.fit(target, feats, model=name, **_seed_params(name, random_state))
         fitted[name] = model
         coefficients[name] = coefficient_table(model, level)
         calibration[name] = acc.calibration(target, model)
@@ -359,12 +388,44 @@ def _doubtful_text(report):
 # -- files --------------------------------------------------------------------
 
 
-def write_outputs(report, df, out_dir):
-    """Write CSV tables, PNG figures, the fitted models and report.html.
+def frame_digest(df):
+    """SHA-256 of a frame written as CSV (how a manifest records data made in memory)."""
+    return sha256_bytes(df.to_csv(index=False).encode("utf-8"))
+
+
+def write_outputs(report, df, out, *, options=None, input_info=None):
+    """Write CSV tables, PNG figures, the model files, report.html and manifest.json.
+
+    The files are written into a staging folder beside ``out`` and moved into
+    place at the end: a whole folder appears, or none. A folder an earlier
+    report wrote (with its manifest) is replaced whole; any other non-empty
+    folder is refused.
+
+    Parameters
+    ----------
+    report : Report
+    df : pandas.DataFrame
+        The data the report was built from.
+    out : path-like or RunFolder
+        The output folder, or a :class:`~skbayeslogit._output.run_folder.RunFolder`
+        made (and so checked) before the computation.
+    options : dict, optional
+        The run's options, recorded in the manifest.
+    input_info : dict, optional
+        What the manifest records of the input (default: the frame's hash).
 
     Returns
     -------
     dict
-        Paths written, by kind.
+        Final paths written, by kind.
     """
-    return write_files(report, df, out_dir, caution=CAUTION)
+    from . import __version__
+
+    folder = out if isinstance(out, RunFolder) else RunFolder(out, option="out")
+    if input_info is None:
+        input_info = {"source": report.source, "rows": len(df), "sha256_of_csv": frame_digest(df)}
+    with folder:
+        staged = write_files(report, df, folder.path, caution=CAUTION)
+        folder.write_manifest(options=options or {}, input_info=input_info, version=__version__)
+        folder.commit()
+    return {kind: [folder.target / p.name for p in paths] for kind, paths in staged.items()}

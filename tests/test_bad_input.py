@@ -597,9 +597,9 @@ def saved_model(tmp_path_factory):
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         code = main(["report", str(path), "--target", "grade", "--models", "laplace",
-                     "--cv", "2", "--quiet", "--out", str(out)])  # fmt: skip
+                     "--cv", "2", "--quiet", "--out", str(out / "report")])  # fmt: skip
     assert code == 0
-    return out / "model_laplace.joblib"
+    return out / "report" / "model_laplace.skops"
 
 
 SCORE_ERRORS = [
@@ -633,9 +633,9 @@ def test_cli_score_rejects_a_file_that_is_not_a_model(tmp_path, capsys):
 
 
 def test_cli_score_extra_and_reordered_columns_give_the_same_predictions(tmp_path, saved_model):
-    import joblib
+    from skbayeslogit._output.model_file import load_model_file
 
-    model = joblib.load(saved_model)["model"]
+    model = load_model_file(saved_model)["model"]
     expected = model.predict_proba(FRAME)[:, 1]
     for case, frame in (
         ("extra column", FRAME.assign(note=1)),

@@ -5,11 +5,11 @@ import re
 import subprocess
 import sys
 
-import joblib
 import numpy as np
 import pandas as pd
 import pytest
 
+from skbayeslogit._output.model_file import load_model_file
 from skbayeslogit.cli import main
 from skbayeslogit.datasets import make_orchard_lots
 
@@ -48,7 +48,7 @@ def test_demo_files_match_the_estimator(demo_run):
     import skbayeslogit.accessor  # noqa: F401
 
     lots = make_orchard_lots(400, random_state=0)
-    saved = joblib.load(demo_run / "model_laplace.joblib")
+    saved = load_model_file(demo_run / "model_laplace.skops")
     # The report fits the numeric columns it names (issue 18 rewires it).
     model = lots.bayeslogit.fit("storage_grade", saved["features"], model="laplace")
     written = pd.read_csv(demo_run / "coefficients_laplace.csv", index_col=0)
@@ -89,11 +89,11 @@ def test_report_on_a_csv_and_score_new_rows(tmp_path, capsys):
     assert code == 0
     assert "file " in capsys.readouterr().out
     preds = tmp_path / "preds.csv"
-    code = main(["score", str(out / "model_laplace.joblib"), str(tmp_path / "new.csv"),
+    code = main(["score", str(out / "model_laplace.skops"), str(tmp_path / "new.csv"),
                  "--level", "0.8", "--out", str(preds), "--quiet"])  # fmt: skip
     assert code == 0
     scored = pd.read_csv(preds)
-    saved = joblib.load(out / "model_laplace.joblib")
+    saved = load_model_file(out / "model_laplace.skops")
     lo, hi = saved["model"].predict_interval(new[features.split(",")], level=0.8)
     np.testing.assert_allclose(scored["prob_long_storage_lower"], lo, rtol=1e-9)
     np.testing.assert_allclose(scored["prob_long_storage_upper"], hi, rtol=1e-9)
@@ -131,7 +131,7 @@ def test_errors_are_one_line_with_exit_code_2(tmp_path, capsys):
 def test_score_names_missing_columns(tmp_path, capsys, demo_run):
     lots = make_orchard_lots(20, random_state=2).drop(columns=["firmness_n", "starch_index"])
     lots.to_csv(tmp_path / "new.csv", index=False)
-    msg = _run_error(["score", str(demo_run / "model_laplace.joblib"), str(tmp_path / "new.csv")],
+    msg = _run_error(["score", str(demo_run / "model_laplace.skops"), str(tmp_path / "new.csv")],
                      capsys)  # fmt: skip
     assert "firmness_n" in msg and "starch_index" in msg
 

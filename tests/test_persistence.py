@@ -21,6 +21,7 @@ from skbayeslogit import (
     ProbitClassifier,
     TemperedLogisticClassifier,
 )
+from skbayeslogit._output.model_file import load_model_file
 from skbayeslogit.cli import main
 from skbayeslogit.datasets import make_orchard_lots
 
@@ -96,7 +97,7 @@ def cli_models(tmp_path_factory):
         warnings.simplefilter("ignore")
         code = main(["report", str(out / "train.csv"), "--target", "storage_grade",
                      "--models", "laplace,tempered", "--cv", "2", "--quiet",
-                     "--out", str(out)])  # fmt: skip
+                     "--out", str(out / "report")])  # fmt: skip
     assert code == 0
     return out, new
 
@@ -108,7 +109,8 @@ def test_cli_models_score_new_rows_in_a_fresh_process(cli_models):
     for name in ("laplace", "tempered"):
         # Both interpreters at once: each pays its own import and numba start.
         procs[name] = subprocess.Popen(
-            [sys.executable, "-m", "skbayeslogit", "score", str(out / f"model_{name}.joblib"),
+            [sys.executable, "-m", "skbayeslogit", "score",
+             str(out / "report" / f"model_{name}.skops"),
              str(out / "new.csv"), "--level", "0.8", "--out", str(out / f"pred_{name}.csv"),
              "--quiet"],
             stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, env=env,
@@ -117,7 +119,7 @@ def test_cli_models_score_new_rows_in_a_fresh_process(cli_models):
         stdout, stderr = proc.communicate(timeout=300)
         assert proc.returncode == 0, stderr
         scored = pd.read_csv(out / f"pred_{name}.csv")
-        saved = joblib.load(out / f"model_{name}.joblib")
+        saved = load_model_file(out / "report" / f"model_{name}.skops")
         model, features = saved["model"], saved["features"]
         P = model.predict_proba(new[features])
         positive = model.classes_[1]

@@ -10,6 +10,7 @@ constraints.
 
 import numpy as np
 import pandas as pd
+from sklearn.utils.validation import _check_sample_weight
 
 from .._linear.columns import column_range, overall_range
 from .params import Boolean, Options, PositiveFloat, PositiveInt, Probability, Scale
@@ -273,3 +274,41 @@ def encode_labels(y):
             return classes, table[offset]
     classes, codes = np.unique(y, return_inverse=True)
     return classes, codes.astype(np.int64).reshape(-1)
+
+
+def row_weights(sample_weight, X):
+    """Our own float64 copy of ``sample_weight`` for the rows of X (ones for None).
+
+    Non-negative and finite, or a one-line error naming ``sample_weight``.
+    """
+    if sample_weight is None:
+        return np.ones(X.shape[0])
+    reject_unusable_array(sample_weight, "sample_weight")
+    w = _check_sample_weight(sample_weight, X, dtype=np.float64, ensure_non_negative=True)
+    w = np.array(w, dtype=np.float64)  # our own copy, whatever was passed
+    if not np.all(np.isfinite(w)):
+        raise ValueError("sample_weight contains NaN or infinity.")
+    return w
+
+
+def codes_in_classes(classes, y, n_rows):
+    """Codes (int64) of the labels y among a fitted model's sorted ``classes``.
+
+    A label the model was not fitted on, or a y of the wrong length, is a
+    one-line error.
+    """
+    y = np.asarray(as_labels(y))
+    if y.ndim != 1 or len(y) != n_rows:
+        raise ValueError(
+            f"y must be 1-D with one label per row of X ({n_rows}); got shape {y.shape}."
+        )
+    try:
+        codes = np.clip(np.searchsorted(classes, y), 0, len(classes) - 1)
+        known = classes[codes] == y
+    except TypeError:  # labels that do not compare with the classes
+        known = np.zeros(len(y), dtype=bool)
+        codes = np.zeros(len(y), dtype=np.int64)
+    if not np.all(known):
+        bad = plain(y[~known][0])
+        raise ValueError(f"y contains the label {bad!r}, which the model was not fitted on.")
+    return codes.astype(np.int64)

@@ -73,11 +73,20 @@ class Scale(Constraint):
 
 
 class PositiveInt(Constraint):
-    """An integer >= 1 (not a bool, not a float holding an integer)."""
+    """An integer >= ``minimum`` (1 by default; not a bool, not a float holding an integer)."""
+
+    def __init__(self, minimum=1, why=None):
+        self.minimum, self.why = minimum, why
 
     def check(self, name, value):
-        if isinstance(value, bool) or not isinstance(value, numbers.Integral) or value < 1:
-            self.fail(f"{name} must be a positive integer; got {value!r}.")
+        if (
+            isinstance(value, bool)
+            or not isinstance(value, numbers.Integral)
+            or value < self.minimum
+        ):
+            wanted = "a positive integer" if self.minimum == 1 else f"an integer >= {self.minimum}"
+            why = f" ({self.why})" if self.why else ""
+            self.fail(f"{name} must be {wanted}{why}; got {value!r}.")
         return int(value)
 
 
@@ -108,8 +117,12 @@ class Options(Constraint):
         self.options, self.listing = options, listing
 
     def check(self, name, value):
-        if isinstance(value, str | None | bool | numbers.Number) and value in self.options:
-            return value
+        if isinstance(value, str | None | bool | np.bool_ | numbers.Number):
+            # 1 == True: a number matches a boolean option only when it is a bool.
+            is_flag = isinstance(value, bool | np.bool_)
+            for option in self.options:
+                if value == option and is_flag == isinstance(option, bool):
+                    return option
         if self.listing == "or":
             wanted = " or ".join(map(repr, self.options))
         else:
@@ -202,10 +215,11 @@ class ParameterTable:
 
     def check(self, estimator):
         """Every declared parameter of ``estimator`` checked; the converted values."""
-        return {
-            name: rule.check(name, getattr(estimator, name))
-            for name, rule in self.constraints.items()
-        }
+        return self.check_values({name: getattr(estimator, name) for name in self.constraints})
+
+    def check_values(self, values):
+        """The entries of ``values`` (a method's arguments, say) checked; the converted values."""
+        return {name: rule.check(name, values[name]) for name, rule in self.constraints.items()}
 
     def __or__(self, other):
         """This table with ``other``'s entries added or replacing."""

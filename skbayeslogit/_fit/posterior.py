@@ -48,6 +48,13 @@ class GaussianPosterior:
         # R = L^{-1} T^T; a triangular solve, once.
         self.R = solve_triangular(chol, T_t, lower=True, check_finite=False)
 
+    def __getstate__(self):
+        # The moment plan is a cache rebuilt on the next prediction; a saved
+        # model holds only the posterior itself.
+        state = self.__dict__.copy()
+        state.pop("_moment_plan", None)
+        return state
+
     @property
     def cov(self):
         """Covariance of the full parameters, (p_full, p_full)."""

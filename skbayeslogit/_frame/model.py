@@ -101,7 +101,8 @@ class FrameModel(FramePosterior, ClassifierMixin, BaseEstimator):
         Categorical column -> level without a coefficient (no prior only).
     columns_ : pandas.DataFrame
         One row per input column: column, role, kind, reason, missing,
-        distinct (``columns.csv``).
+        distinct (``columns.csv``); built from ``column_roles_`` (the same
+        table as a dict of lists, which is what is stored).
     statements_ : list of str
         Every decision taken without being told.
     rows_dropped_ : int
@@ -140,6 +141,12 @@ class FrameModel(FramePosterior, ClassifierMixin, BaseEstimator):
         self.missing = missing
         self.max_levels = max_levels
         self.standardize = standardize
+
+    @property
+    def columns_(self):
+        """The role of every input column, one row each (see the class docstring)."""
+        check_is_fitted(self, "pipeline_")
+        return pd.DataFrame(self.column_roles_)
 
     def __getattr__(self, name):
         if name in _PASSED_ON and "pipeline_" in self.__dict__:
@@ -246,7 +253,8 @@ class FrameModel(FramePosterior, ClassifierMixin, BaseEstimator):
         self.weight_column_ = roles.weight
         self.groups_ = {str(k): list(v) for k, v in enc.groups.items()}
         self.reference_levels_ = dict(enc.reference_levels)
-        self.columns_ = roles.table
+        # Plain lists, not a DataFrame: model files (skops) cannot hold pandas.
+        self.column_roles_ = {c: roles.table[c].tolist() for c in roles.table.columns}
         self.statements_ = list(roles.statements) + list(enc.statements)
         self.rows_dropped_ = dropped
         self.imputed_ = dict(enc.imputed)

@@ -55,8 +55,9 @@ def _tables(report):
 
 
 def write_files(report, df, out_dir, caution):
-    """Write CSV tables, PNG figures, the fitted models and report.html.
+    """Write CSV tables, PNG figures, the fitted models and report.html into ``out_dir``.
 
+    ``out_dir`` is an existing folder (the staging folder of a run);
     ``caution`` is the screening-aid notice the page shows at the top.
 
     Returns
@@ -64,12 +65,9 @@ def write_files(report, df, out_dir, caution):
     dict
         Paths written, by kind.
     """
-    import joblib
-
-    from .. import __version__
+    from .._output.model_file import SUFFIX, save_model_file
 
     out = Path(out_dir)
-    out.mkdir(parents=True, exist_ok=True)
     written = {"csv": [], "png": [], "model": [], "html": []}
 
     for name, frame in _tables(report).items():
@@ -78,17 +76,14 @@ def write_files(report, df, out_dir, caution):
         written["csv"].append(path)
 
     for name, model in report.models.items():
-        path = out / f"model_{name}.joblib"
-        joblib.dump(
-            {
-                "model": model,
-                "target": report.target,
-                "features": list(report.features),
-                "classes": list(report.classes),
-                "model_name": name,
-                "skbayeslogit_version": __version__,
-            },
+        path = out / f"model_{name}{SUFFIX}"
+        save_model_file(
             path,
+            model,
+            model_name=name,
+            target=report.target,
+            features=report.features,
+            classes=report.classes,
         )
         written["model"].append(path)
 

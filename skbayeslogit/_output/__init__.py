@@ -1,0 +1,1 @@
+"""What the command line writes: model files, output folders, files written whole."""
