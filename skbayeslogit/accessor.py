@@ -10,14 +10,10 @@ the encoding (levels named ``column=level``) and the estimator as one
 fitted object that reads its columns by name from any frame. Methods whose
 ``model`` is a name ("laplace", "probit", "tempered", imported when first
 used) or an unfitted estimator fit it on this frame first (in-sample).
-Missing values: ``missing="error"`` (counted per column in the error),
-``"drop"`` (or ``dropna=True``: rows left out with a DroppedRowsWarning and
-``attrs["rows_dropped"]``) or ``"impute"``. docs/input-handling.md has the
-rules.
+Missing values: ``missing="error"``, ``"drop"`` (or ``dropna=True``; a
+DroppedRowsWarning, ``attrs["rows_dropped"]``) or ``"impute"``.
 
-Caution
--------
-Everything here is a statistical screening aid. Probabilities, intervals,
+Caution: everything here is a statistical screening aid. Probabilities, intervals,
 doubtful-label lists and cost thresholds are only as good as the data and
 the model; where a decision affects people (credit, health, safety,
 employment) they do not replace review by someone who knows the domain.
@@ -87,13 +83,11 @@ class BayesLogitAccessor:
         Parameters
         ----------
         target : column name
-            The labels (any dtype with at least two distinct values).
+            The labels (any dtype, at least two distinct values).
         features : list of column names, optional
-            None: every column that the role rules make a feature (see
-            "Column roles" in the module docstring).
+            None: every column the role rules make a feature.
         model : {"laplace", "probit", "tempered"} or estimator, default="laplace"
-            A name, or a scikit-learn classifier instance, which is cloned
-            (the caller's instance is never fitted in place).
+            A name, or a classifier instance (cloned, never fitted in place).
         positive : label, optional
             Positive class of a binary target (probabilities, intervals,
             confusion and costs are about it). Default: the second class in
@@ -108,20 +102,16 @@ class BayesLogitAccessor:
         max_levels : int, default=20
             Text columns with more distinct values are left out.
         standardize : bool, default=True
-            Fit on standardised encoded columns
-            (:class:`~skbayeslogit.standardized.StandardizedClassifier`):
-            ``prior_scale`` is then the prior sd of the change in the linear
-            predictor per standard deviation of a column, whatever its
-            units; ``coef_table()`` reports both scales. False: as encoded.
+            Fit through :class:`~skbayeslogit.standardized.StandardizedClassifier`:
+            ``prior_scale`` acts per standard deviation of each encoded
+            column; ``coef_table()`` reports both scales.
         dropna : bool, default=False
         **params
-            Constructor parameters of the model (for example
-            ``prior_scale=1.0``).
+            Constructor parameters of the model (``prior_scale=1.0``, ...).
 
         Returns
         -------
         FrameModel
-            Fitted; see the module docstring.
         """
         options = {
             "features": features, "positive": positive, "weight": weight, "id": id,
@@ -140,19 +130,17 @@ class BayesLogitAccessor:
             Fitted here unless fitted, with ``fit_options`` (keywords of
             ``fit``); it needs a proper prior (not ``prior_scale=None``).
         refit : bool, default=False
-            False: the closed-form Savage-Dickey ratio of the fitted
-            Gaussian posterior (Dickey 1971), accurate while zero lies in
-            the bulk of the posterior. True: the ratio of the Laplace
-            evidences with and without each column, one refit per column on
-            this frame, accurate in the tails too.
+            False: the Savage-Dickey ratio of the fitted Gaussian posterior
+            (Dickey 1971). True: Laplace evidences with and without each
+            column, one refit per column on this frame (accurate in the
+            tails too).
 
         Returns
         -------
         pandas.DataFrame
-            One row per original column (a categorical column is one row,
-            its levels together): ``n_parameters``, ``log10_bf_no_effect``
-            (positive favours no effect), ``evidence`` (Kass & Raftery's
-            verbal scale) and ``method``.
+            One row per original column (a categorical column's levels
+            together): ``n_parameters``, ``log10_bf_no_effect`` (positive
+            favours no effect), ``evidence`` (verbal) and ``method``.
         """
         if not is_fitted(model):
             model = self.fit(target, model=model, **fit_options)
@@ -174,13 +162,12 @@ class BayesLogitAccessor:
         Returns
         -------
         pandas.DataFrame
-            A copy of the frame's (used) rows with new columns, for binary
-            models ``prob_<c>``, ``prob_<c>_lower``, ``prob_<c>_upper`` for
-            the model's positive class ``c``; for multiclass models
-            the same three for every class; then ``predicted_label``. The
-            bounds are present only for models with ``predict_interval``
-            (laplace, probit); other models get the probabilities and label
-            only. ``attrs["level"]`` records the level.
+            A copy of the frame's (used) rows (IDs included) with new
+            columns: binary ``prob_<c>``, ``prob_<c>_lower``,
+            ``prob_<c>_upper`` of the positive class ``c``, multiclass the
+            three for every class (bounds only for models with
+            ``predict_interval``); then ``predicted_label``.
+            ``attrs["level"]`` and ``attrs["unseen_levels"]``.
         """
         return prediction_table(self._df, model, check_level(level), dropna)
 
@@ -237,14 +224,11 @@ class BayesLogitAccessor:
             ``observed_frequency`` (NaN for empty bins). Binary: of the
             positive class. The summary is in ``attrs``:
 
-            - ``ece``: expected calibration error, sum over bins of
-              count / n * |observed - mean predicted| (multiclass: the mean
-              over classes of the one-vs-rest ECE), in [0, 1];
-            - ``brier``: mean squared error of the probabilities (binary:
-              of the positive class, in [0, 1]; multiclass: summed over
-              classes, in [0, 2], as scikit-learn's ``brier_score_loss``);
-            - ``log_loss``: mean -log P(recorded label), probabilities
-              clipped at machine epsilon;
+            - ``ece``: sum over bins of count / n * |observed - mean
+              predicted| (multiclass: the mean one-vs-rest ECE);
+            - ``brier``: mean squared error of the probabilities (binary: of
+              the positive class; multiclass: summed over classes, in [0, 2]);
+            - ``log_loss``: mean -log P(recorded label), clipped at epsilon;
             - ``ece_by_class`` (multiclass), ``n``, ``bins``, ``classes``.
         """
         bins = check_positive_int("bins", bins)
@@ -319,13 +303,12 @@ class BayesLogitAccessor:
             installation, or the binary-only "probit" on a multiclass
             target, is skipped with a warning.
         cv : int >= 2, default=5
-            Folds of a ``StratifiedKFold(cv, shuffle=True,
-            random_state=random_state)``. The folds are drawn once and
-            every model sees the same ones.
+            Folds of a ``StratifiedKFold(cv, shuffle=True, random_state=...)``,
+            drawn once: every model sees the same ones.
         random_state : int, RandomState or None, default=None
-            Seeds the fold assignment (pass an int for repeatable folds).
+            Seeds the fold assignment.
         standardize : bool, default=True
-            As in ``fit``: every model is fitted on standardised features.
+            As in ``fit``.
         dropna : bool, default=False
         **fit_options
             ``positive``, ``weight``, ``id``, ``exclude``, ``missing``,
@@ -439,9 +422,8 @@ class BayesLogitAccessor:
         Returns
         -------
         matplotlib.figure.Figure
-            Filled markers: the interval excludes zero. For a model fitted
-            with ``standardize=True`` the coefficients are per standard
-            deviation of each feature, so their sizes are comparable.
+            Filled markers: the interval excludes zero. Standardised
+            coefficients (``standardize=True``) have comparable sizes.
         """
         from .plotting import coefficient_figure, require_matplotlib
 
@@ -467,18 +449,16 @@ class BayesLogitAccessor:
         ----------
         model : fitted binary estimator (or a name, fitted here on ``target``)
         x, y : column names
-            Two of the model's features, on the horizontal and vertical axes.
-            The model's other features are held at their means over the rows.
+            Two numeric features of the model, on the two axes; the others
+            are held at their means (categorical: the most frequent level).
         n_draws : int >= 0, default=20
-            Posterior draws whose boundaries are drawn (models with
-            ``sample_coef`` only).
+            Posterior draws whose boundaries are drawn (with ``sample_coef``).
         target : column name, optional
             Labels to show; default ``model.target_name_`` (set by ``fit``).
         level : float in (0, 1), default=0.9
             The shaded band is where the ``level`` credible interval of the
             probability contains 0.5 (models with ``predict_interval``).
         random_state : int, RandomState or None, default=0
-            Seeds the posterior draws.
         grid_size : int, default=200
             Grid points per axis for the probability surface.
         dropna : bool, default=False
