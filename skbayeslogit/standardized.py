@@ -292,6 +292,25 @@ class StandardizedClassifier(ClassifierMixin, BaseEstimator):
         out.attrs = {"level": level, "scale": scale}
         return out
 
+    @available_if(_inner_has("column_evidence"))
+    def column_evidence(self, groups=None, X=None, y=None, sample_weight=None):
+        """Bayes factor of "no effect" per column (or group of columns).
+
+        "No effect" (the group's slopes are zero) is the same statement on
+        both scales, and the prior acts on the standardised one, so the
+        wrapped estimator computes it there: without data from its
+        posterior (Savage-Dickey), with ``X`` (recorded units, standardised
+        here) by refitting. See the wrapped estimator's ``column_evidence``.
+
+        Returns
+        -------
+        pandas.DataFrame
+        """
+        check_is_fitted(self, "estimator_")
+        if X is not None:
+            X = self._standardize(X)
+        return self.estimator_.column_evidence(groups, X, y, sample_weight)
+
     @available_if(_inner_has("sample_coef"))
     def sample_coef(self, n, random_state=None):
         """Posterior draws of the parameters on the ORIGINAL units.
