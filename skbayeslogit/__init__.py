@@ -4,6 +4,7 @@ robustness for linear classifiers, inside scikit-learn and pandas."""
 from . import accessor  # noqa: F401  (registers the df.bayeslogit accessor)
 from ._linear.sources import set_block_rows
 from .exceptions import CollinearityWarning, SeparationWarning
+from .labelflip import LabelFlipLogisticClassifier
 from .laplace import LaplaceLogisticClassifier
 from .probit import ProbitClassifier
 from .tempered import TemperedLogisticClassifier
@@ -13,6 +14,7 @@ __version__ = "0.1.0"
 
 __all__ = [
     "CollinearityWarning",
+    "LabelFlipLogisticClassifier",
     "LaplaceLogisticClassifier",
     "ProbitClassifier",
     "SeparationWarning",

@@ -44,6 +44,7 @@ from ._checks.params import (
     Scale,
 )
 from ._fit.evidence import log_evidence, maximise_evidence
+from ._fit.hyperparameter import maximise_joint_evidence
 from ._fit.identification import check_identification
 from ._fit.newton import NewtonProblem, solve_map
 from ._fit.posterior import GaussianPosterior
@@ -253,6 +254,18 @@ class GaussianPosteriorClassifier(
     def _binary_decision(self, mean, var):  # pragma: no cover - abstract
         raise NotImplementedError
 
+    def _likelihood_search(self, n_classes):
+        """None, or a ``_fit.hyperparameter.LikelihoodSearch``: a likelihood
+        hyperparameter that the evidence chooses with the prior scale.
+
+        ``fit`` then maximises the Laplace evidence over both and reports
+        the posterior averaged over the hyperparameter (``_fit.
+        hyperparameter``) instead of fitting ``_make_likelihood``'s; the
+        chosen value and its posterior sd are kept as ``_hyperparameter``
+        (None without a search).
+        """
+        return None
+
     # -- fitting ---------------------------------------------------------------
     def _check_params(self):
         checked = super()._check_params()
@@ -282,14 +295,16 @@ class GaussianPosteriorClassifier(
         data = self._fit_data(X, y, sample_weight)
         design, y_fit, w = data.design, data.y, data.w
         likelihood = self._make_likelihood(len(self.classes_))
+        search = self._likelihood_search(len(self.classes_))
         layout = design.layout
         free_map = layout.free_map(
             self._prior_scale is not None, self._intercept_scale is not None
         )
 
-        def fit_at(scale, phi0=None, warn=True):
+        def fit_at(scale, phi0=None, warn=True, lik=None):
+            lik = likelihood if lik is None else lik
             prior = layout.prior_precision(scale, self._intercept_scale)
-            problem = NewtonProblem(design, likelihood, y_fit, w, prior, free_map)
+            problem = NewtonProblem(design, lik, y_fit, w, prior, free_map)
             result = solve_map(problem, phi0, max_iter=self.max_iter, tol=self.tol, warn=warn)
             return result, log_evidence(
                 layout, problem.p_free, result, scale, self._intercept_scale
@@ -298,18 +313,28 @@ class GaussianPosteriorClassifier(
         # Memory-mapped or dask input runs the same solver over a design whose
         # passes run block by block where the data are (``_linear.sources``).
         with passes_own_threads():
-            if self._prior_scale == "auto":
-                scale, result, log_ev = maximise_evidence(design, w, fit_at)
+            self._hyperparameter = None
+            if search is not None:
+                joint = maximise_joint_evidence(
+                    design, w, fit_at, search, self._prior_scale, free_map
+                )
+                scale, result, log_ev = joint.scale, joint.result, joint.log_evidence
+                likelihood, mean, chol = joint.likelihood, joint.theta, joint.chol
+                self._hyperparameter = (joint.value, joint.value_sd)
             else:
-                scale = self._prior_scale
-                result, log_ev = fit_at(scale)
+                if self._prior_scale == "auto":
+                    scale, result, log_ev = maximise_evidence(design, w, fit_at)
+                else:
+                    scale = self._prior_scale
+                    result, log_ev = fit_at(scale)
+                mean, chol = result.theta, result.chol
 
             self.prior_scale_ = scale
             self.log_evidence_ = log_ev
             self.n_iter_ = result.n_iter
-            self._set_coef(layout, result.theta)
-            self._posterior = GaussianPosterior(result.theta, result.chol, free_map)
-            self.posterior_mean_ = result.theta.copy()
+            self._set_coef(layout, mean)
+            self._posterior = GaussianPosterior(mean, chol, free_map)
+            self.posterior_mean_ = np.array(mean)
             self.posterior_cov_ = self._posterior.cov
             if self._prior_scale is None:
                 check_identification(design, likelihood, y_fit, w, result, self._free_names)

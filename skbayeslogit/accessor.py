@@ -2,54 +2,18 @@
 
 Importing this module registers the accessor (``import skbayeslogit`` does
 it for you). Every method reads the frame, never changes it, and returns a
-new DataFrame, a fitted estimator or a :class:`matplotlib.figure.Figure`::
+new DataFrame, a fitted model or a :class:`matplotlib.figure.Figure`.
 
-    import skbayeslogit.accessor  # registers df.bayeslogit
-    from skbayeslogit.datasets import make_orchard_lots
+``fit`` returns a :class:`~skbayeslogit._frame.model.FrameModel`: the column
+roles (decided once; ``columns_`` and ``statements_`` say which and why),
+the encoding (levels named ``column=level``) and the estimator as one
+fitted object that reads its columns by name from any frame. Methods whose
+``model`` is a name ("laplace", "probit", "tempered", imported when first
+used) or an unfitted estimator fit it on this frame first (in-sample).
+Missing values: ``missing="error"``, ``"drop"`` (or ``dropna=True``; a
+DroppedRowsWarning, ``attrs["rows_dropped"]``) or ``"impute"``.
 
-    df = make_orchard_lots(400, random_state=0)
-    model = df.bayeslogit.fit("storage_grade")        # every numeric column
-    model.coef_table()                                # both scales
-    table = df.bayeslogit.predict_table(model)        # probability, bounds, label
-    scores = df.bayeslogit.compare("storage_grade", random_state=0)
-
-How a fitted model remembers its columns
-----------------------------------------
-``fit`` passes the features to the estimator as a DataFrame, so the fitted
-estimator carries scikit-learn's ``feature_names_in_``. Every method that
-takes a fitted model selects exactly those columns from the frame it is
-called on (a missing one is a KeyError that lists the frame's columns), so a
-model fitted on one frame predicts on another with the same columns, in any
-column order. The target is always passed by name, with one exception:
-``plot_boundary`` (whose signature has no target) falls back to the
-attribute ``target_name_`` that ``fit`` sets on the estimator it returns.
-
-Methods whose ``model`` argument is a name ("laplace", "probit",
-"tempered") or an unfitted estimator fit it first on this frame (the
-target and every numeric column but the target, standardised as in
-``fit``); the evaluation is then in-sample.
-
-Models by name
---------------
-"laplace" (:class:`~skbayeslogit.LaplaceLogisticClassifier`), "probit"
-(:class:`~skbayeslogit.probit.ProbitClassifier`, binary only) and
-"tempered" (:class:`~skbayeslogit.tempered.TemperedLogisticClassifier`)
-are imported only when first used, so the accessor works in an
-installation where some of them are missing; :func:`make_model` names the
-missing one in its error.
-
-Missing values
---------------
-By default a NaN in a used column (features or target) is an error that
-counts the missing values per column. With ``dropna=True`` the rows with a
-NaN in a used column are left out, a :class:`DroppedRowsWarning` says how
-many, and DataFrame results record the number in
-``result.attrs["rows_dropped"]``. Infinite feature values are always an
-error.
-
-Caution
--------
-Everything here is a statistical screening aid. Probabilities, intervals,
+Caution: everything here is a statistical screening aid. Probabilities, intervals,
 doubtful-label lists and cost thresholds are only as good as the data and
 the model; where a decision affects people (credit, health, safety,
 employment) they do not replace review by someone who knows the domain.
@@ -63,15 +27,22 @@ from ._frame.arguments import check_cost, check_positive_int, check_probability
 from ._frame.columns import DroppedRowsWarning
 from ._frame.comparison import compare_models
 from ._frame.evaluation import calibration_table, confusion_table, cost_threshold_table
-from ._frame.figures import boundary_view, calibration_view, coefficient_view
-from ._frame.fitting import fit_on_frame
+from ._frame.figures import (
+    boundary_view,
+    calibration_view,
+    checked_boundary_options,
+    coefficient_view,
+)
+from ._frame.fitting import evidence_of_columns, fit_on_frame
+from ._frame.model import FrameModel
 from ._frame.predictions import default_doubt_model, doubtful_rows, prediction_table
-from ._frame.registry import MODEL_NAMES, available_models, make_model
+from ._frame.registry import MODEL_NAMES, available_models, is_fitted, make_model
 
 __all__ = [
     "MODEL_NAMES",
     "BayesLogitAccessor",
     "DroppedRowsWarning",
+    "FrameModel",
     "make_model",
 ]
 
@@ -92,49 +63,88 @@ class BayesLogitAccessor:
 
     # -- fitting -----------------------------------------------------------------
     def fit(
-        self, target, features=None, model="laplace", *, standardize=True, dropna=False, **params
+        self,
+        target,
+        features=None,
+        model="laplace",
+        *,
+        positive=None,
+        weight=None,
+        id=None,
+        exclude=None,
+        missing="error",
+        max_levels=20,
+        standardize=True,
+        dropna=False,
+        **params,
     ):
-        """Fit a classifier to ``target`` from feature columns of this frame.
+        """Fit a classifier to ``target`` from the feature columns of this frame.
 
         Parameters
         ----------
         target : column name
-            The labels (any dtype with at least two distinct values).
+            The labels (any dtype, at least two distinct values).
         features : list of column names, optional
-            None: every numeric (and boolean) column except the target, in
-            frame order. Non-numeric columns are an error that names them.
+            None: every column the role rules make a feature.
         model : {"laplace", "probit", "tempered"} or estimator, default="laplace"
-            A name, or a scikit-learn classifier instance, which is cloned
-            (the caller's instance is never fitted in place).
+            A name, or a classifier instance (cloned, never fitted in place).
+        positive : label, optional
+            Positive class of a binary target (probabilities, intervals,
+            confusion and costs are about it). Default: the second class in
+            sorted order (scikit-learn's ``classes_[1]``).
+        weight : column name, optional
+            Frequency weights (finite, >= 0): weight 3 counts as three rows.
+        id, exclude : column name or list, optional
+            ID columns (never features, kept in row-level outputs); columns
+            left out.
+        missing : {"error", "drop", "impute"}, default="error"
+            See "Missing values" above; ``dropna=True`` is ``"drop"``.
+        max_levels : int, default=20
+            Text columns with more distinct values are left out.
         standardize : bool, default=True
-            Fit on standardised features (each column centred on its mean
-            and divided by its sd) through
-            :class:`~skbayeslogit.standardized.StandardizedClassifier`,
-            which takes features in their recorded units for prediction and
-            reports coefficients on both scales (``coef_table()``). The
-            prior then acts on the STANDARDISED scale: ``prior_scale`` is
-            the prior sd of the change in the linear predictor per standard
-            deviation of a feature, the same statement for every column
-            whatever its units. This is the default because a single prior
-            scale over features in grams, newtons and percent shrinks them
-            very unequally. False: the estimator is fitted on the features
-            as recorded and returned bare.
+            Fit through :class:`~skbayeslogit.standardized.StandardizedClassifier`:
+            ``prior_scale`` acts per standard deviation of each encoded
+            column; ``coef_table()`` reports both scales.
         dropna : bool, default=False
-            Leave out rows with a missing feature or target (with a
-            DroppedRowsWarning) instead of raising.
         **params
-            Constructor parameters of the model (for example
-            ``prior_scale=1.0``).
+            Constructor parameters of the model (``prior_scale=1.0``, ...).
 
         Returns
         -------
-        estimator
-            Fitted, with ``feature_names_in_`` the feature columns and
-            ``target_name_`` the target column.
+        FrameModel
         """
-        return fit_on_frame(
-            self._df, target, features, model, standardize, dropna, params, stacklevel=3
-        )
+        options = {
+            "features": features, "positive": positive, "weight": weight, "id": id,
+            "exclude": exclude, "missing": missing, "max_levels": max_levels,
+            "standardize": standardize, "dropna": dropna,
+        }  # fmt: skip
+        return fit_on_frame(self._df, target, model, options, params)
+
+    def column_evidence(self, target, model="laplace", *, refit=False, **fit_options):
+        """Bayes factor of "no effect" for each original column.
+
+        Parameters
+        ----------
+        target : column name
+        model : name, unfitted estimator or fitted FrameModel, default="laplace"
+            Fitted here unless fitted, with ``fit_options`` (keywords of
+            ``fit``); it needs a proper prior (not ``prior_scale=None``).
+        refit : bool, default=False
+            False: the Savage-Dickey ratio of the fitted Gaussian posterior
+            (Dickey 1971). True: Laplace evidences with and without each
+            column, one refit per column on this frame (accurate in the
+            tails too).
+
+        Returns
+        -------
+        pandas.DataFrame
+            One row per original column (a categorical column's levels
+            together): ``n_parameters``, ``log10_bf_no_effect`` (positive
+            favours no effect), ``evidence`` (verbal) and ``method``.
+        """
+        if not is_fitted(model):
+            model = self.fit(target, model=model, **fit_options)
+        return evidence_of_columns(model, self._df if refit else None)
 
     # -- prediction ----------------------------------------------------------------
     def predict_table(self, model, level=0.9, *, dropna=False):
@@ -152,18 +162,17 @@ class BayesLogitAccessor:
         Returns
         -------
         pandas.DataFrame
-            A copy of the frame's (used) rows with new columns, for binary
-            models ``prob_<c>``, ``prob_<c>_lower``, ``prob_<c>_upper`` for
-            the positive class ``c = classes_[1]``; for multiclass models
-            the same three for every class; then ``predicted_label``. The
-            bounds are present only for models with ``predict_interval``
-            (laplace, probit); other models get the probabilities and label
-            only. ``attrs["level"]`` records the level.
+            A copy of the frame's (used) rows (IDs included) with new
+            columns: binary ``prob_<c>``, ``prob_<c>_lower``,
+            ``prob_<c>_upper`` of the positive class ``c``, multiclass the
+            three for every class (bounds only for models with
+            ``predict_interval``); then ``predicted_label``.
+            ``attrs["level"]`` and ``attrs["unseen_levels"]``.
         """
         return prediction_table(self._df, model, check_level(level), dropna)
 
     # -- evaluation ---------------------------------------------------------------
-    def confusion(self, target, model, threshold=0.5, *, dropna=False):
+    def confusion(self, target, model, threshold=0.5, *, positive=None, dropna=False):
         """Counts and rates of the model's calls against the recorded labels.
 
         Parameters
@@ -172,12 +181,15 @@ class BayesLogitAccessor:
         model : fitted estimator, name or unfitted estimator (fitted here)
         threshold : float in [0, 1], default=0.5
             A row is called class ``c`` when P(c | x) >= threshold.
+        positive : label, optional
+            Positive class of a binary target. Default: the model's own
+            (``fit(positive=...)``), else scikit-learn's ``classes_[1]``.
         dropna : bool, default=False
 
         Returns
         -------
         pandas.DataFrame
-            Binary: one row, for the positive class ``classes_[1]``.
+            Binary: one row, for the positive class.
             Multiclass: one row per class, each class against the rest
             (one-vs-rest: a row can be called several classes or none).
             Columns ``threshold``, ``n``, ``tp``, ``fp``, ``fn``, ``tn``,
@@ -187,9 +199,9 @@ class BayesLogitAccessor:
             ``attrs["accuracy"]`` is the accuracy of the most probable class.
         """
         threshold = check_probability("threshold", threshold)
-        return confusion_table(self._df, target, model, threshold, dropna)
+        return confusion_table(self._df, target, model, threshold, dropna, positive)
 
-    def calibration(self, target, model, bins=10, *, dropna=False):
+    def calibration(self, target, model, bins=10, *, positive=None, dropna=False):
         """Reliability table, expected calibration error, Brier score, log loss.
 
         Parameters
@@ -199,6 +211,8 @@ class BayesLogitAccessor:
         bins : int >= 1, default=10
             Equal-width probability bins ``[0, 1/bins], (1/bins, 2/bins],
             ...`` (as scikit-learn's ``calibration_curve``, "uniform").
+        positive : label, optional
+            As in ``confusion``.
         dropna : bool, default=False
 
         Returns
@@ -208,22 +222,21 @@ class BayesLogitAccessor:
             column; each class against the rest), columns ``bin``,
             ``bin_lower``, ``bin_upper``, ``count``, ``mean_predicted`` and
             ``observed_frequency`` (NaN for empty bins). Binary: of the
-            positive class ``classes_[1]``. The summary is in ``attrs``:
+            positive class. The summary is in ``attrs``:
 
-            - ``ece``: expected calibration error, sum over bins of
-              count / n * |observed - mean predicted| (multiclass: the mean
-              over classes of the one-vs-rest ECE), in [0, 1];
-            - ``brier``: mean squared error of the probabilities (binary:
-              of the positive class, in [0, 1]; multiclass: summed over
-              classes, in [0, 2], as scikit-learn's ``brier_score_loss``);
-            - ``log_loss``: mean -log P(recorded label), probabilities
-              clipped at machine epsilon;
+            - ``ece``: sum over bins of count / n * |observed - mean
+              predicted| (multiclass: the mean one-vs-rest ECE);
+            - ``brier``: mean squared error of the probabilities (binary: of
+              the positive class; multiclass: summed over classes, in [0, 2]);
+            - ``log_loss``: mean -log P(recorded label), clipped at epsilon;
             - ``ece_by_class`` (multiclass), ``n``, ``bins``, ``classes``.
         """
         bins = check_positive_int("bins", bins)
-        return calibration_table(self._df, target, model, bins, dropna)
+        return calibration_table(self._df, target, model, bins, dropna, positive)
 
-    def doubtful_labels(self, target, model=None, top=20, *, features=None, dropna=False):
+    def doubtful_labels(
+        self, target, model=None, top=20, *, features=None, positive=None, dropna=False
+    ):
         """The rows whose recorded labels the model most disagrees with.
 
         Parameters
@@ -237,8 +250,9 @@ class BayesLogitAccessor:
         top : int or None, default=20
             How many rows to return; None returns every row, ranked.
         features : list of column names, optional
-            Features when the model is fitted here (default: every numeric
-            column but the target).
+            Features when the model is fitted here (default: by the roles).
+        positive : label, optional
+            As in ``confusion``.
         dropna : bool, default=False
 
         Returns
@@ -262,7 +276,7 @@ class BayesLogitAccessor:
         if model is None:
             # Looked up here, at call time: the installation decides.
             model = default_doubt_model(available_models())
-        return doubtful_rows(self._df, target, model, top, features, dropna)
+        return doubtful_rows(self._df, target, model, top, features, dropna, positive)
 
     def compare(
         self,
@@ -274,6 +288,7 @@ class BayesLogitAccessor:
         random_state=None,
         standardize=True,
         dropna=False,
+        **fit_options,
     ):
         """Cross-validated comparison of several models on the same folds.
 
@@ -281,21 +296,25 @@ class BayesLogitAccessor:
         ----------
         target : column name
         features : list of column names, optional
-            Default: every numeric column but the target.
+            Default: every column the role rules make a feature.
         models : sequence of names/estimators, or mapping label -> model
             Names are built as in ``fit``; estimator instances are cloned
             for every fold. A named model that is not available in this
             installation, or the binary-only "probit" on a multiclass
             target, is skipped with a warning.
         cv : int >= 2, default=5
-            Folds of a ``StratifiedKFold(cv, shuffle=True,
-            random_state=random_state)``. The folds are drawn once and
-            every model sees the same ones.
+            Folds of a ``StratifiedKFold(cv, shuffle=True, random_state=...)``,
+            drawn once: every model sees the same ones.
         random_state : int, RandomState or None, default=None
-            Seeds the fold assignment (pass an int for repeatable folds).
+            Seeds the fold assignment.
         standardize : bool, default=True
-            As in ``fit``: every model is fitted on standardised features.
+            As in ``fit``.
         dropna : bool, default=False
+        **fit_options
+            ``positive``, ``weight``, ``id``, ``exclude``, ``missing``,
+            ``max_levels`` as in ``fit``. The column roles are decided once
+            on the whole frame; each fold encodes its own training rows (a
+            level absent from them scores as no level).
 
         Returns
         -------
@@ -308,23 +327,23 @@ class BayesLogitAccessor:
             not counted). Scores are on the held-out fold of each split.
         """
         cv = check_positive_int("cv", cv, minimum=2)
+        options = {"features": features, "dropna": dropna, **fit_options}
         return compare_models(
             self._df,
             target,
-            features,
             models,
             cv,
             available=available_models(),
             random_state=random_state,
             standardize=standardize,
-            dropna=dropna,
+            options=options,
         )
 
-    def cost_threshold(self, target, model, cost_fp, cost_fn, *, dropna=False):
+    def cost_threshold(self, target, model, cost_fp, cost_fn, *, positive=None, dropna=False):
         """The probability threshold that minimises the expected cost of errors.
 
-        A row is called the positive class ``classes_[1]`` when its
-        probability is >= the threshold. Correct calls cost nothing.
+        A row is called the positive class when its probability is >= the
+        threshold. Correct calls cost nothing.
 
         Parameters
         ----------
@@ -332,9 +351,11 @@ class BayesLogitAccessor:
             Binary target.
         model : fitted estimator, name or unfitted estimator (fitted here)
         cost_fp : float > 0
-            Cost of calling a ``classes_[0]`` row positive.
+            Cost of calling a negative row positive.
         cost_fn : float > 0
-            Cost of calling a ``classes_[1]`` row negative.
+            Cost of calling a positive row negative.
+        positive : label, optional
+            As in ``confusion``.
         dropna : bool, default=False
 
         Returns
@@ -365,7 +386,7 @@ class BayesLogitAccessor:
         """
         c_fp = check_cost("cost_fp", cost_fp)
         c_fn = check_cost("cost_fn", cost_fn)
-        return cost_threshold_table(self._df, target, model, c_fp, c_fn, dropna)
+        return cost_threshold_table(self._df, target, model, c_fp, c_fn, dropna, positive)
 
     def check_approximation(self, target, model="laplace", *, dropna=False, **options):
         """How far the model's Laplace posterior is from the exact one on this frame's rows.
@@ -401,9 +422,8 @@ class BayesLogitAccessor:
         Returns
         -------
         matplotlib.figure.Figure
-            Filled markers: the interval excludes zero. For a model fitted
-            with ``standardize=True`` the coefficients are per standard
-            deviation of each feature, so their sizes are comparable.
+            Filled markers: the interval excludes zero. Standardised
+            coefficients (``standardize=True``) have comparable sizes.
         """
         from .plotting import coefficient_figure, require_matplotlib
 
@@ -429,18 +449,16 @@ class BayesLogitAccessor:
         ----------
         model : fitted binary estimator (or a name, fitted here on ``target``)
         x, y : column names
-            Two of the model's features, on the horizontal and vertical axes.
-            The model's other features are held at their means over the rows.
+            Two numeric features of the model, on the two axes; the others
+            are held at their means (categorical: the most frequent level).
         n_draws : int >= 0, default=20
-            Posterior draws whose boundaries are drawn (models with
-            ``sample_coef`` only).
+            Posterior draws whose boundaries are drawn (with ``sample_coef``).
         target : column name, optional
             Labels to show; default ``model.target_name_`` (set by ``fit``).
         level : float in (0, 1), default=0.9
             The shaded band is where the ``level`` credible interval of the
             probability contains 0.5 (models with ``predict_interval``).
         random_state : int, RandomState or None, default=0
-            Seeds the posterior draws.
         grid_size : int, default=200
             Grid points per axis for the probability surface.
         dropna : bool, default=False
@@ -452,31 +470,12 @@ class BayesLogitAccessor:
         from .plotting import boundary_figure, require_matplotlib
 
         require_matplotlib()
-        level = check_level(level)
-        n_draws = check_positive_int("n_draws", n_draws, minimum=0)
-        grid_size = check_positive_int("grid_size", grid_size, minimum=10)
-        if target is None:
-            target = getattr(model, "target_name_", None)
-            if target is None:
-                raise ValueError(
-                    "pass target=: the model does not record its target column "
-                    "(models from df.bayeslogit.fit do)."
-                )
-        view = boundary_view(
-            self._df,
-            model,
-            x,
-            y,
-            target,
-            n_draws=n_draws,
-            level=level,
-            random_state=random_state,
-            grid_size=grid_size,
-            dropna=dropna,
-        )
+        options = {"n_draws": n_draws, "level": level, "random_state": random_state,
+                   "grid_size": grid_size, "dropna": dropna}  # fmt: skip
+        view = boundary_view(self._df, model, x, y, target, **checked_boundary_options(options))
         return boundary_figure(**view)
 
-    def plot_calibration(self, target, model, bins=10, *, dropna=False):
+    def plot_calibration(self, target, model, bins=10, *, positive=None, dropna=False):
         """Reliability diagram with bin counts and the calibration scores.
 
         Parameters
@@ -484,6 +483,8 @@ class BayesLogitAccessor:
         target : column name
         model : fitted estimator, name or unfitted estimator (fitted here)
         bins : int, default=10
+        positive : label, optional
+            As in ``confusion``.
         dropna : bool, default=False
 
         Returns
@@ -495,5 +496,5 @@ class BayesLogitAccessor:
         from .plotting import calibration_figure, require_matplotlib
 
         require_matplotlib()
-        table = self.calibration(target, model, bins, dropna=dropna)
+        table = self.calibration(target, model, bins, positive=positive, dropna=dropna)
         return calibration_figure(**calibration_view(table, target))

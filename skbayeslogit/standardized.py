@@ -239,6 +239,16 @@ class StandardizedClassifier(ClassifierMixin, BaseEstimator):
         """The wrapped estimator's per-row label-doubt score."""
         return self.estimator_.label_doubt(self._standardize(X), y)
 
+    @available_if(_inner_has("flip_probability"))
+    def flip_probability(self, X, y):
+        """The wrapped estimator's probability that each recorded label was flipped."""
+        return self.estimator_.flip_probability(self._standardize(X), y)
+
+    @available_if(_inner_has("predict_recorded_proba"))
+    def predict_recorded_proba(self, X):
+        """The wrapped estimator's probabilities of the label as recorded (flips included)."""
+        return self.estimator_.predict_recorded_proba(self._standardize(X))
+
     # -- posterior on both scales ------------------------------------------------
     @available_if(_inner_has("coef_table"))
     def coef_table(self, level=0.9, scale="both"):
@@ -281,6 +291,25 @@ class StandardizedClassifier(ClassifierMixin, BaseEstimator):
                 out = pd.concat([std, orig.add_suffix("_original")], axis=1)
         out.attrs = {"level": level, "scale": scale}
         return out
+
+    @available_if(_inner_has("column_evidence"))
+    def column_evidence(self, groups=None, X=None, y=None, sample_weight=None):
+        """Bayes factor of "no effect" per column (or group of columns).
+
+        "No effect" (the group's slopes are zero) is the same statement on
+        both scales, and the prior acts on the standardised one, so the
+        wrapped estimator computes it there: without data from its
+        posterior (Savage-Dickey), with ``X`` (recorded units, standardised
+        here) by refitting. See the wrapped estimator's ``column_evidence``.
+
+        Returns
+        -------
+        pandas.DataFrame
+        """
+        check_is_fitted(self, "estimator_")
+        if X is not None:
+            X = self._standardize(X)
+        return self.estimator_.column_evidence(groups, X, y, sample_weight)
 
     @available_if(_inner_has("sample_coef"))
     def sample_coef(self, n, random_state=None):

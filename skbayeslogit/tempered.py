@@ -1,31 +1,75 @@
 """Label-noise-robust linear classifier: the bi-tempered logistic loss."""
 
-import numbers
 import warnings
 
 import numpy as np
 from sklearn.exceptions import ConvergenceWarning
 
 from ._base import LinearClassifierBase
-from ._checks.inputs import check_bool, check_positive_float, check_positive_int, check_scale
+from ._checks.params import (
+    Boolean,
+    Interval,
+    Options,
+    ParameterTable,
+    PositiveFloat,
+    PositiveInt,
+    Scale,
+)
 from ._fit.lbfgs import minimize_scaled
 from ._fit.likelihoods import BinaryLogistic, MultinomialLogistic
-from ._fit.newton import solve_map
-from ._fit.tempered_inputs import tempered_fit_data
+from ._fit.newton import NewtonProblem, solve_map
 from ._fit.tempered_likelihood import BiTemperedLikelihood
+from ._linear.layout import ParameterLayout
 from ._linear.scaling import ColumnScaling
 from ._linear.sources import dask_aware
-from ._linear.threads import passes_own_threads
 from .tempered_functions import tempered_softmax
 
+# Rows of the sample on which the convex start is fitted when the data are
+# larger: the start only has to land in the right basin.
+_START_ROWS = 20_000
 
-def _check_temperature(name, value, low, high, why):
-    if isinstance(value, bool) or not isinstance(value, numbers.Real):
-        raise TypeError(f"{name} must be a float; got {type(value).__name__}.")
-    value = float(value)
-    if not (np.isfinite(value) and low <= value <= high):
-        raise ValueError(f"{name} must be in [{low:g}, {high:g}] ({why}); got {value!r}.")
-    return value
+
+def convex_start(data, prior, slope_prior):
+    """The t1 = t2 = 1 solution: penalised logistic regression by Newton.
+
+    Parameters
+    ----------
+    data : FitData
+    prior : ndarray of shape (p_full,)
+        Prior precision of the slopes (0 for the intercepts).
+    slope_prior : bool
+        Whether the slopes have a penalty (else the multiclass start fixes
+        a reference class, see ``ParameterLayout.free_map``).
+
+    Returns
+    -------
+    ndarray of shape (p_full,)
+    """
+    design = data.design
+    layout = design.layout
+    likelihood = BinaryLogistic() if layout.q == 1 else MultinomialLogistic(layout.q)
+    free_map = layout.free_map(slope_prior, False)
+    problem = NewtonProblem(design, likelihood, data.y, data.w, prior, free_map)
+    if design.n > _START_ROWS:
+        # The logistic fit on a row sample (weights rescaled to the full
+        # total) lands in the same basin as the full-data solve.
+        problem = problem.subsample(_START_ROWS) or problem
+    # As in the Laplace fit, the design's thread policy holds for the
+    # whole Newton solve (toggling it per pass made each small Cholesky
+    # wait for OpenBLAS's threads).
+    with warnings.catch_warnings(), problem.design.pass_threads():
+        # Separation or a slow start is harmless here: L-BFGS carries on.
+        warnings.simplefilter("ignore")
+        theta = solve_map(problem, max_iter=50, tol=1e-6, warn=False).theta
+    if not np.all(np.isfinite(theta)):
+        return np.zeros(layout.p_full)
+    # Without a penalty and separated classes the logistic start runs
+    # off to large norms; the bounded loss has no use for that.
+    limit = 50.0 / max(float(design.column_max_abs().max()), 1e-12)
+    largest = np.max(np.abs(layout.slopes(theta)))
+    if largest > limit:
+        theta = theta * (limit / largest)
+    return theta
 
 
 class TemperedLogisticClassifier(LinearClassifierBase):
@@ -124,26 +168,29 @@ class TemperedLogisticClassifier(LinearClassifierBase):
         self.tol = tol
         self.warm_start = warm_start
 
+    _parameter_constraints = ParameterTable(
+        {
+            "t1": Interval(0.0, 1.0, why="t1 < 1 bounds the loss"),
+            "t2": Interval(
+                1.0,
+                5.0,
+                why="t2 > 1 gives heavy tails; t2 < 1 gives a softmax with finite support, "
+                "which can leave classes with zero probability and no gradient",
+            ),
+            "label_smoothing": Interval(0.0, 1.0, closed="left"),
+            "prior_scale": Scale(),
+            "start": Options("convex", "zero", listing="or"),
+            "max_iter": PositiveInt(),
+            "tol": PositiveFloat(),
+            "fit_intercept": Boolean(),
+            "warm_start": Boolean(),
+        }
+    )
+
     def _check_params(self):
-        self._t1 = _check_temperature("t1", self.t1, 0.0, 1.0, "t1 < 1 bounds the loss")
-        self._t2 = _check_temperature(
-            "t2",
-            self.t2,
-            1.0,
-            5.0,
-            "t2 > 1 gives heavy tails; t2 < 1 gives a softmax with finite support, "
-            "which can leave classes with zero probability and no gradient",
-        )
-        ls = self.label_smoothing
-        if isinstance(ls, bool) or not isinstance(ls, numbers.Real) or not 0 <= ls < 1:
-            raise ValueError(f"label_smoothing must be in [0, 1); got {ls!r}.")
-        self._scale = check_scale("prior_scale", self.prior_scale)
-        if self.start not in ("convex", "zero"):
-            raise ValueError(f"start must be 'convex' or 'zero'; got {self.start!r}.")
-        check_positive_int("max_iter", self.max_iter)
-        check_positive_float("tol", self.tol)
-        check_bool("fit_intercept", self.fit_intercept)
-        check_bool("warm_start", self.warm_start)
+        checked = super()._check_params()
+        self._t1, self._t2, self._scale = checked["t1"], checked["t2"], checked["prior_scale"]
+        return checked
 
     # -- fitting -------------------------------------------------------------
     def fit(self, X, y, sample_weight=None):
@@ -164,24 +211,31 @@ class TemperedLogisticClassifier(LinearClassifierBase):
         """
         self._check_params()
         previous = self._previous_parameters()
-        data = tempered_fit_data(self, X, y, sample_weight)
+        data = self._fit_data(X, y, sample_weight)
         design = data.design
         prior = design.layout.prior_precision(self._scale)
         theta0 = self._starting_point(data, prior, previous)
-        likelihood = BiTemperedLikelihood(
-            self._t1, self._t2, self.label_smoothing, design.q, design.n
-        )
+        likelihood = BiTemperedLikelihood(self._t1, self._t2, self.label_smoothing, design.q)
+        problem = NewtonProblem(design, likelihood, likelihood.labels(data.y), data.w, prior)
+
+        def objective(theta):
+            value, grad, _, _ = problem.value_grad(theta)
+            # Successive evaluations are at nearby parameters: from now on
+            # each row's normaliser starts from its previous value.
+            likelihood.warm = True
+            return value, grad
+
         # L-BFGS works on the parameters of centred, unit-spread columns (see
         # _fit.lbfgs): its steps and gradient test then mean the same
         # whatever the units of the features and of the weights.
-        scaling = ColumnScaling(*data.column_moments(design.fit_intercept), design.layout)
-        with data.solving():
+        scaling = ColumnScaling.of_design(design, data.w)
+        with design.pass_threads():
             result = minimize_scaled(
-                data.objective(likelihood, prior),
+                objective,
                 theta0,
                 scaling,
                 design.n,
-                data.total_weight,
+                design.weight_total(data.w),
                 self.max_iter,
                 self.tol,
             )
@@ -202,10 +256,7 @@ class TemperedLogisticClassifier(LinearClassifierBase):
     def _previous_parameters(self):
         if not (self.warm_start and hasattr(self, "coef_")):
             return None
-        parts = [self.coef_.ravel()]
-        if self.fit_intercept:
-            parts.append(self.intercept_)
-        return np.concatenate(parts)
+        return ParameterLayout.of_estimator(self).join(self.coef_, self.intercept_)
 
     def _starting_point(self, data, prior, previous):
         """The previous fit's parameters (warm start), the convex start, or zeros."""
@@ -213,32 +264,8 @@ class TemperedLogisticClassifier(LinearClassifierBase):
         if previous is not None and previous.shape == (p_full,):
             return previous
         if self.start == "convex":
-            return self._convex_start(data, prior)
+            return convex_start(data, prior, self._scale is not None)
         return np.zeros(p_full)
-
-    def _convex_start(self, data, prior):
-        """The t1 = t2 = 1 solution: penalised logistic regression by Newton."""
-        layout = data.design.layout
-        q = layout.q
-        likelihood = BinaryLogistic() if q == 1 else MultinomialLogistic(q)
-        free_map = layout.free_map(self._scale is not None, False)
-        problem = data.start_problem(likelihood, prior, free_map)
-        # passes_own_threads: as in the Laplace fit, BLAS stays at one thread
-        # for the whole Newton solve (toggling it per pass made each small
-        # Cholesky wait for OpenBLAS's threads).
-        with warnings.catch_warnings(), passes_own_threads():
-            # Separation or a slow start is harmless here: L-BFGS carries on.
-            warnings.simplefilter("ignore")
-            theta = solve_map(problem, max_iter=50, tol=1e-6, warn=False).theta
-        if not np.all(np.isfinite(theta)):
-            return np.zeros(layout.p_full)
-        # Without a penalty and separated classes the logistic start runs
-        # off to large norms; the bounded loss has no use for that.
-        limit = 50.0 / max(data.largest_feature(), 1e-12)
-        largest = np.max(np.abs(layout.slopes(theta)))
-        if largest > limit:
-            theta = theta * (limit / largest)
-        return theta
 
     def _canonical(self, layout, theta):
         """Centre the unidentified common shift of a multiclass fit."""

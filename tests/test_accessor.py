@@ -44,13 +44,13 @@ def df3():
 
 @pytest.fixture(scope="module")
 def m2(df2):
-    return df2.bayeslogit.fit(TARGET)
+    return df2.bayeslogit.fit(TARGET, list(FEATURES))
 
 
 @pytest.fixture(scope="module")
 def m3(df3):
     # Seeded: multiclass credible bounds are Monte Carlo quantiles.
-    return df3.bayeslogit.fit(TARGET, random_state=0)
+    return df3.bayeslogit.fit(TARGET, list(FEATURES), random_state=0)
 
 
 def _frozen(df):
@@ -102,11 +102,16 @@ def test_missing_model_module_is_a_clear_import_error(monkeypatch):
 # ------------------------------------------------------------------------ fit
 
 
-def test_fit_takes_numeric_columns_but_the_target(df2, m2):
-    assert isinstance(m2, StandardizedClassifier)
-    assert list(m2.feature_names_in_) == list(FEATURES)  # lot_id, orchard are str
-    assert m2.target_name_ == TARGET
-    assert list(m2.classes_) == ["early_sale", "long_storage"]
+def test_fit_takes_every_usable_column_but_the_target_and_the_id(df2):
+    # Issue 18: the text column orchard is encoded (it was left out without a
+    # word); lot_id is an ID by its name, never a feature.
+    m = df2.bayeslogit.fit(TARGET)
+    assert isinstance(m, acc.FrameModel)
+    assert isinstance(m.pipeline_[-1], StandardizedClassifier)
+    assert list(m.feature_names_in_) == [*FEATURES, "orchard"]
+    assert m.id_columns_ == ["lot_id"] and m.groups_["orchard"][0] == "orchard=Cedar Slope"
+    assert m.target_name_ == TARGET
+    assert list(m.classes_) == ["early_sale", "long_storage"]
 
 
 def test_fit_includes_bool_columns_and_respects_features(df2):
@@ -120,7 +125,7 @@ def test_fit_includes_bool_columns_and_respects_features(df2):
 def test_standardized_fit_equals_fit_on_standard_scaler_output(df2):
     from sklearn.preprocessing import StandardScaler
 
-    m = df2.bayeslogit.fit(TARGET, prior_scale=0.7)
+    m = df2.bayeslogit.fit(TARGET, list(FEATURES), prior_scale=0.7)
     X = df2[list(FEATURES)]
     Z = pd.DataFrame(StandardScaler().fit_transform(X), columns=list(FEATURES))
     ref = LaplaceLogisticClassifier(prior_scale=0.7).fit(Z, df2[TARGET])
@@ -134,8 +139,9 @@ def test_both_scales_agree_with_a_maximum_likelihood_fit_on_raw_units(df2):
     # Without a prior the fit is invariant to rescaling the features, so the
     # original-scale half of the table must equal an unstandardised fit:
     # estimates, observed-information sd, bounds, sign probabilities.
-    std = df2.bayeslogit.fit(TARGET, prior_scale=None).coef_table(0.9)
-    raw = df2.bayeslogit.fit(TARGET, prior_scale=None, standardize=False).coef_table(0.9)
+    feats = list(FEATURES)
+    std = df2.bayeslogit.fit(TARGET, feats, prior_scale=None).coef_table(0.9)
+    raw = df2.bayeslogit.fit(TARGET, feats, prior_scale=None, standardize=False).coef_table(0.9)
     for col in ("estimate", "sd", "lower", "upper", "sign_prob"):
         np.testing.assert_allclose(std[f"{col}_original"], raw[col], rtol=1e-6, atol=1e-9)
     # Slopes: one sd of the feature times the per-unit slope.
@@ -167,14 +173,16 @@ def test_missing_column_lists_the_available_ones(df2, m2):
         df2.drop(columns="firmness_n").bayeslogit.predict_table(m2)
 
 
-def test_non_numeric_features_are_named_with_encoding_advice(df2):
-    with pytest.raises(
-        ValueError, match=r"non-numeric feature column\(s\): orchard .*get_dummies"
-    ):
-        df2.bayeslogit.fit(TARGET, ["firmness_n", "orchard"])
+def test_text_features_are_encoded_not_refused(df2):
+    # Issue 18: a text column is a categorical feature (one column per level),
+    # no longer an error; a table with only an ID and a text column still fits.
+    m = df2.bayeslogit.fit(TARGET, ["firmness_n", "orchard"], prior_scale=1.0)
+    assert list(m.feature_names_out_) == ["firmness_n", *m.groups_["orchard"]]
+    assert len(m.groups_["orchard"]) == df2["orchard"].nunique()
     only_text = df2[["lot_id", "orchard", TARGET]]
-    with pytest.raises(ValueError, match="no numeric feature columns.*lot_id, orchard.*Encode"):
-        only_text.bayeslogit.fit(TARGET)
+    assert list(only_text.bayeslogit.fit(TARGET).feature_names_in_) == ["orchard"]
+    with pytest.raises(ValueError, match="no usable feature columns"):
+        df2[["lot_id", TARGET]].bayeslogit.fit(TARGET)
 
 
 def test_nan_rows_are_counted_per_column(df2):
@@ -335,9 +343,10 @@ def test_confusion_multiclass_one_vs_rest_matches_sklearn(df3, m3):
     assert table.attrs["accuracy"] == pytest.approx(accuracy_score(y, m3.predict(X)), rel=RTOL)
 
 
-def test_confusion_fits_a_named_model_in_sample(df2, m2):
+def test_confusion_fits_a_named_model_in_sample(df2):
     by_name = df2.bayeslogit.confusion(TARGET, "laplace")
-    pd.testing.assert_frame_equal(by_name, df2.bayeslogit.confusion(TARGET, m2))
+    fitted = df2.bayeslogit.fit(TARGET)  # every usable column, as the named model
+    pd.testing.assert_frame_equal(by_name, df2.bayeslogit.confusion(TARGET, fitted))
 
 
 # ---------------------------------------------------------------- calibration
@@ -392,7 +401,7 @@ def test_doubtful_labels_fall_back_to_laplace_with_a_warning(df2, monkeypatch):
     assert out.attrs["scorer"] == "-log P(recorded label)"
     assert len(out) == 20
     model = df2.bayeslogit.fit(TARGET)
-    P = model.predict_proba(df2[list(FEATURES)])
+    P = model.predict_proba(df2)  # the model reads its own columns (orchard encoded)
     codes = (df2[TARGET] == "long_storage").to_numpy().astype(int)
     score = -np.log(P[np.arange(len(P)), codes])
     expected = np.argsort(-score, kind="stable")[:20]
@@ -434,7 +443,10 @@ def _ece_score(y_true, proba, *, labels):
 
 
 def test_compare_equals_cross_validate_on_the_same_folds(df2):
-    table = df2.bayeslogit.compare(TARGET, models=["laplace"], cv=4, random_state=11)
+    # The reference below sees the numeric columns only.
+    table = df2.bayeslogit.compare(
+        TARGET, list(FEATURES), models=["laplace"], cv=4, random_state=11
+    )
     X = df2[list(FEATURES)]
     y = df2[TARGET].to_numpy(dtype=object)
     labels = np.array(["early_sale", "long_storage"], dtype=object)
@@ -468,7 +480,9 @@ def test_compare_equals_cross_validate_on_the_same_folds(df2):
 def test_compare_multiclass_skips_binary_only_probit(df3):
     pytest.importorskip("skbayeslogit.probit")
     with pytest.warns(UserWarning, match="'probit' is binary-only"):
-        table = df3.bayeslogit.compare(TARGET, models=["laplace", "probit"], cv=3, random_state=0)
+        table = df3.bayeslogit.compare(
+            TARGET, list(FEATURES), models=["laplace", "probit"], cv=3, random_state=0
+        )
     assert list(table.index) == ["laplace"]
     X = df3[list(FEATURES)]
     y = df3[TARGET].to_numpy(dtype=object)
@@ -555,7 +569,7 @@ def test_probit_by_name():
     m = df.bayeslogit.fit(TARGET, model="probit")
     assert isinstance(m.estimator_, ProbitClassifier)
     out = df.bayeslogit.predict_table(m)
-    lo, hi = m.predict_interval(df[list(FEATURES)])
+    lo, hi = m.predict_interval(df)
     np.testing.assert_allclose(out["prob_long_storage_lower"], lo, rtol=RTOL)
     table = df.bayeslogit.compare(TARGET, models=["laplace", "probit"], cv=3, random_state=1)
     assert list(table.index) == ["laplace", "probit"]
@@ -569,9 +583,7 @@ def test_tempered_by_name_and_as_the_default_doubt_model():
     m = df.bayeslogit.fit(TARGET, model="tempered")
     assert isinstance(m.estimator_, TemperedLogisticClassifier)
     out = df.bayeslogit.predict_table(m)
-    np.testing.assert_allclose(
-        out["prob_long_storage"], m.predict_proba(df[list(FEATURES)])[:, 1], rtol=RTOL
-    )
+    np.testing.assert_allclose(out["prob_long_storage"], m.predict_proba(df)[:, 1], rtol=RTOL)
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         doubt = df.bayeslogit.doubtful_labels(TARGET)

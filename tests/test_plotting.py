@@ -29,12 +29,12 @@ def df3():
 
 @pytest.fixture(scope="module")
 def m2(df2):
-    return df2.bayeslogit.fit(TARGET)
+    return df2.bayeslogit.fit(TARGET, list(FEATURES))
 
 
 @pytest.fixture(scope="module")
 def m3(df3):
-    return df3.bayeslogit.fit(TARGET, random_state=0)
+    return df3.bayeslogit.fit(TARGET, list(FEATURES), random_state=0)
 
 
 def _by_gid(ax, gid):

@@ -22,6 +22,8 @@ ESTIMATORS = [
 for extra in (
     _optional("skbayeslogit.probit", "ProbitClassifier"),
     _optional("skbayeslogit.tempered", "TemperedLogisticClassifier", t1=0.8, t2=1.2),
+    _optional("skbayeslogit.labelflip", "LabelFlipLogisticClassifier"),
+    _optional("skbayeslogit.labelflip", "LabelFlipLogisticClassifier", flip_rate=0.1),
 ):
     if extra is not None:
         ESTIMATORS.append(extra)
@@ -37,3 +39,5 @@ def test_contract_covers_every_public_estimator():
     assert "LaplaceLogisticClassifier" in names
     pytest.importorskip("skbayeslogit.probit")
     assert "ProbitClassifier" in names
+    pytest.importorskip("skbayeslogit.labelflip")
+    assert "LabelFlipLogisticClassifier" in names

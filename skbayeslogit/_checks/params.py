@@ -99,6 +99,26 @@ class PositiveFloat(Constraint):
         return float(value)
 
 
+class NonNegativeFloat(Constraint):
+    """A finite real number >= 0, or (``allow_auto``) "auto"."""
+
+    def __init__(self, allow_auto=False):
+        self.allow_auto = allow_auto
+
+    def check(self, name, value):
+        wanted = "a float or 'auto'" if self.allow_auto else "a float"
+        if isinstance(value, str):
+            if self.allow_auto and value == "auto":
+                return "auto"
+            self.fail(f"{name} must be {wanted}; got {value!r}.")
+        if not _is_real(value):
+            self.fail(f"{name} must be {wanted}; got {type(value).__name__}.")
+        value = float(value)
+        if not (np.isfinite(value) and value >= 0):
+            self.fail(f"{name} must be a finite float >= 0; got {value!r}.")
+        return value
+
+
 class Boolean(Constraint):
     """True or False (numpy's bool too)."""
 

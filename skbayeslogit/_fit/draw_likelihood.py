@@ -55,7 +55,10 @@ class DrawLikelihood:
         Where each parameter sits in the vectors.
     likelihood : object
         A likelihood of ``likelihoods`` (binary: ``log_prob_positive``;
-        multiclass: ``log_softmax``; both: ``loss_grad``).
+        multiclass: ``log_softmax``; both: ``loss_grad``). One whose
+        recorded label is not drawn from that link directly (the label-flip
+        model) maps the link's log probability of the recorded label to the
+        label's log-likelihood with ``recorded_log_prob``.
     y : ndarray of shape (n,)
         Binary: float labels in {0, 1}; multiclass: int64 class codes.
     w : ndarray of shape (n,)
@@ -69,6 +72,7 @@ class DrawLikelihood:
         self.y = y
         self.w = np.ascontiguousarray(w, dtype=np.float64)
         self._logistic = layout.q == 1 and getattr(likelihood, "name", "") == "logistic"
+        self._recorded = getattr(likelihood, "recorded_log_prob", None) or (lambda log_p: log_p)
         if layout.q == 1:
             self._sign = 2.0 * np.asarray(y, dtype=np.float64) - 1.0
 
@@ -127,7 +131,8 @@ class DrawLikelihood:
         total = np.zeros(B.shape[1])
         for start, stop, E in self._blocks(B, b, first, last, rows):
             E *= self._sign[start:stop, None]
-            total += np.dot(self.w[start:stop], self.likelihood.log_prob_positive(E))
+            log_p = self._recorded(self.likelihood.log_prob_positive(E))
+            total += np.dot(self.w[start:stop], log_p)
         return total
 
     def _multi_task(self, B, b, first, last, rows):
@@ -140,7 +145,7 @@ class DrawLikelihood:
             top = E3.max(axis=2, keepdims=True)
             lse = np.log(np.exp(E3 - top).sum(axis=2)) + top[:, :, 0]
             picked = E3[np.arange(m), :, self.y[start:stop]]
-            total += np.dot(self.w[start:stop], picked - lse)
+            total += np.dot(self.w[start:stop], self._recorded(picked - lse))
         return total
 
     def value_grad(self, thetas):
@@ -183,13 +188,14 @@ class DrawLikelihood:
                 y_rep, w_rep = np.repeat(y_b, C), np.repeat(w_b, C)
                 _, g = lik.loss_grad(y_rep, E.ravel(), w_rep)
                 G = -g.reshape(m, C, 1)
-                value += np.dot(w_b, lik.log_prob_positive(E * self._sign[start:stop, None]))
+                log_p = lik.log_prob_positive(E * self._sign[start:stop, None])
+                value += np.dot(w_b, self._recorded(log_p))
             else:
                 flat = E.reshape(m * C, q)
                 _, g = lik.loss_grad(np.repeat(y_b, C), flat, np.repeat(w_b, C))
                 G = -g.reshape(m, C, q)
                 logp = lik.log_softmax(flat).reshape(m, C, q)
-                value += np.dot(w_b, logp[np.arange(m), :, y_b])
+                value += np.dot(w_b, self._recorded(logp[np.arange(m), :, y_b]))
             Xb = self.X[start:stop]
             g_coef += np.dot(G.reshape(m, C * q).T, Xb).reshape(C, q, d)
             g_int += G.sum(axis=0)

@@ -37,13 +37,69 @@ def log_evidence(layout, p_free, result, scale, intercept_scale):
     return float(-result.objective + 0.5 * p_free * LOG_2PI - 0.5 * log_det + const)
 
 
-def maximise_evidence(design, w, fit_at):
+class WarmStartedSearch:
+    """Fits at values of one hyperparameter, each started from the nearest earlier one.
+
+    ``fit(u, phi0)`` returns ``(NewtonResult, log evidence)``; the results
+    are kept by value (``cache``), so a value is never fitted twice.
+
+    Parameters
+    ----------
+    fit : callable
+    phi_start : ndarray or None
+        The start of the first fit.
+    """
+
+    def __init__(self, fit, phi_start=None):
+        self.fit = fit
+        self.phi_start = phi_start
+        self.cache = {}
+
+    def log_evidence(self, u):
+        """The log evidence at ``u`` (fitted on first use)."""
+        u = float(u)
+        if u not in self.cache:
+            nearest = min(self.cache, key=lambda v: abs(v - u)) if self.cache else None
+            phi0 = self.phi_start if nearest is None else self.cache[nearest][0].phi
+            with warnings.catch_warnings():
+                # Trial fits: the chosen one is refitted with warnings on.
+                warnings.simplefilter("ignore")
+                self.cache[u] = self.fit(u, phi0)
+        return self.cache[u][1]
+
+    def best(self):
+        """The value of largest evidence so far, its result and log evidence."""
+        u = max(self.cache, key=lambda v: self.cache[v][1])
+        return u, *self.cache[u]
+
+    def grid_then_brent(self, grid, refine_at_first=True, xatol=1e-3):
+        """Evidence on ``grid`` (increasing), then bounded Brent between the best point's
+        neighbours; the best value found, its result and log evidence.
+
+        ``refine_at_first=False``: a maximum at the grid's first value is
+        kept as it is.
+        """
+        values = [self.log_evidence(u) for u in grid]
+        best = int(np.argmax(values))
+        lo, hi = grid[max(best - 1, 0)], grid[min(best + 1, len(grid) - 1)]
+        if hi > lo and (best > 0 or refine_at_first):
+            minimize_scalar(
+                lambda u: -self.log_evidence(u),
+                bounds=(lo, hi),
+                method="bounded",
+                options={"xatol": xatol},
+            )
+        return self.best()
+
+
+def maximise_evidence(design, w, fit_at, phi_start=None):
     """prior_scale maximising the Laplace evidence, on a log scale.
 
     A coarse grid of nine scales, a decade apart around 1 / (median
     weighted feature sd), brackets the maximum; bounded Brent on
     log10(scale) within one decade either side of the best grid point
-    refines it. Each fit starts from the nearest earlier solution.
+    refines it. Each fit starts from the nearest earlier solution (the
+    first from ``phi_start``).
 
     When the smallest scale wins, the data do not support any slope
     (the evidence keeps rising as the prior squeezes them to zero, as for
@@ -58,6 +114,7 @@ def maximise_evidence(design, w, fit_at):
         Row weights, for designs that do not hold them.
     fit_at : callable
         ``fit_at(scale, phi0, warn) -> (NewtonResult, log evidence)``.
+    phi_start : ndarray, optional
 
     Returns
     -------
@@ -67,25 +124,8 @@ def maximise_evidence(design, w, fit_at):
     sd = sd[sd > 0]
     ref = 1.0 / float(np.median(sd)) if len(sd) else 1.0
     grid = np.log10(ref) + np.arange(-4.0, 5.0)
-    cache = {}
-
-    def neg_log_ev(u):
-        if u in cache:
-            return -cache[u][1]
-        nearest = min(cache, key=lambda v: abs(v - u)) if cache else None
-        phi0 = None if nearest is None else cache[nearest][0].phi
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")
-            result, log_ev = fit_at(10.0**u, phi0, warn=False)
-        cache[u] = (result, log_ev)
-        return -log_ev
-
-    values = [neg_log_ev(u) for u in grid]
-    best = int(np.argmin(values))
-    if best > 0:
-        lo, hi = grid[best - 1], grid[min(best + 1, len(grid) - 1)]
-        minimize_scalar(neg_log_ev, bounds=(lo, hi), method="bounded", options={"xatol": 1e-3})
-    u_best = min(cache, key=lambda v: -cache[v][1])
+    search = WarmStartedSearch(lambda u, phi0: fit_at(10.0**u, phi0, warn=False), phi_start)
+    u_best, result, _ = search.grid_then_brent(grid, refine_at_first=False)
     if u_best >= grid[-1] - 1e-6:
         warnings.warn(
             "the Laplace evidence is still rising at the largest prior_scale searched "
@@ -98,5 +138,5 @@ def maximise_evidence(design, w, fit_at):
     scale = 10.0**u_best
     # Refit at the chosen scale with warnings on, so a real convergence
     # problem is reported.
-    result, log_ev = fit_at(scale, cache[u_best][0].phi, warn=True)
+    result, log_ev = fit_at(scale, result.phi, warn=True)
     return scale, result, log_ev

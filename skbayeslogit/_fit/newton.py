@@ -35,6 +35,10 @@ and, should it fail (a poor subsample, say), ordinary Newton iterations
 continue from there. Either way the returned point is one where the exact
 Hessian was computed.
 
+A likelihood that is not log-concave (``log_concave = False``) climbs from
+its log-concave relative's MAP with a positive semi-definite curvature and
+finishes with Newton on its observed Hessian (module ``observed``).
+
 Reference: Boyd & Vandenberghe, Convex Optimization (2004), Sec. 9.5
 (Newton's method, Newton decrement, backtracking line search).
 """
@@ -46,6 +50,7 @@ import numpy as np
 from sklearn.exceptions import ConvergenceWarning
 
 from .lapack import chol_solve, factor, robust_cholesky
+from .observed import CLIMB_TOL, is_log_concave, settle_observed
 from .problem import NewtonProblem
 
 __all__ = ["NewtonProblem", "NewtonResult", "newton_solve", "solve_map"]
@@ -402,6 +407,33 @@ def _subsample_start(problem, phi0, max_iter):
     return None, None
 
 
+def _solve_climbing(problem, phi0, max_iter, tol):
+    """MAP of the subsample-metric Newton below, in the problem's own curvature."""
+    phi0, metric = _subsample_start(problem, phi0, max_iter)
+    if phi0 is None:
+        phi0 = np.zeros(problem.p_free)
+    if metric is None:
+        return newton_solve(problem, phi0, max_iter=max_iter, tol=tol)
+    phi1, eta1, spent, last = _metric_phase(
+        problem,
+        np.array(phi0, dtype=np.float64),
+        metric,
+        max_iter=max_iter,
+        tol=tol * _METRIC_TOL_FACTOR,
+    )
+    result = newton_solve(
+        problem,
+        phi1,
+        max_iter=max(max_iter - spent, 1),
+        tol=tol,
+        eta0=eta1,
+        final_step=False,
+        start=last,
+    )
+    result.n_iter += spent
+    return result
+
+
 def solve_map(problem, phi0=None, *, max_iter=100, tol=1e-8, warn=True):
     """MAP estimate; on large data, a subsample start and metric (module docstring).
 
@@ -418,29 +450,16 @@ def solve_map(problem, phi0=None, *, max_iter=100, tol=1e-8, warn=True):
     -------
     NewtonResult
     """
-    phi0, metric = _subsample_start(problem, phi0, max_iter)
-    if phi0 is None:
-        phi0 = np.zeros(problem.p_free)
-    if metric is None:
-        result = newton_solve(problem, phi0, max_iter=max_iter, tol=tol)
+    if is_log_concave(problem.likelihood):
+        result = _solve_climbing(problem, phi0, max_iter, tol)
     else:
-        phi1, eta1, spent, last = _metric_phase(
-            problem,
-            np.array(phi0, dtype=np.float64),
-            metric,
-            max_iter=max_iter,
-            tol=tol * _METRIC_TOL_FACTOR,
-        )
-        result = newton_solve(
-            problem,
-            phi1,
-            max_iter=max(max_iter - spent, 1),
-            tol=tol,
-            eta0=eta1,
-            final_step=False,
-            start=last,
-        )
-        result.n_iter += spent
+        start = getattr(problem.likelihood, "start_likelihood", None)
+        if phi0 is None and start is not None:
+            start_problem = problem.with_likelihood(start)
+            phi0 = solve_map(start_problem, max_iter=max_iter, tol=tol, warn=False).phi
+        climbed = _solve_climbing(problem, phi0, max_iter, max(tol, CLIMB_TOL))
+        polished = newton_solve(problem.with_observed(), climbed.phi, max_iter=max_iter, tol=tol)
+        result = settle_observed(problem, climbed, polished, warn)
     if warn and not result.converged:
         warnings.warn(
             f"Newton's method did not converge in {result.n_iter} iterations "

@@ -3,6 +3,7 @@
 import numpy as np
 
 from .._linear.design import LinearDesign
+from .observed import observed_loss_grad_hess
 
 
 def _free_map_blocks(T):
@@ -52,6 +53,7 @@ class NewtonProblem:
         self.w = w
         self.prior_precision = np.asarray(prior_precision, dtype=np.float64)
         self.free_map = free_map
+        self.observed = False  # see with_observed
         self.p_free = design.p_full if free_map is None else free_map.shape[1]
         self._free_blocks = None if free_map is None else _free_map_blocks(free_map)
 
@@ -80,6 +82,22 @@ class NewtonProblem:
     def penalty(self, theta):
         return 0.5 * float(theta @ (self.prior_precision * theta))
 
+    def with_likelihood(self, likelihood):
+        """The same data, prior and free map with another likelihood."""
+        return NewtonProblem(
+            self.design, likelihood, self.y, self.w, self.prior_precision, self.free_map
+        )
+
+    def with_observed(self):
+        """The same problem whose ``derivatives`` use the likelihood's observed Hessian.
+
+        For likelihoods that are not log-concave (module ``observed``): their
+        ``derivatives`` give a curvature to climb with, not the Hessian.
+        """
+        problem = self.with_likelihood(self.likelihood)
+        problem.observed = True
+        return problem
+
     def derivatives(self, phi, eta=None):
         """E, its gradient and Hessian in free coordinates, the NLL part, eta.
 
@@ -87,7 +105,14 @@ class NewtonProblem:
         data pass when not given.
         """
         theta = self.to_full(phi)
-        loss, g, H, eta = self.design.loss_grad_hess(self.likelihood, self.y, self.w, theta, eta)
+        if self.observed:
+            loss, g, H, eta = observed_loss_grad_hess(
+                self.design, self.likelihood, self.y, self.w, theta, eta
+            )
+        else:
+            loss, g, H, eta = self.design.loss_grad_hess(
+                self.likelihood, self.y, self.w, theta, eta
+            )
         g = g + self.prior_precision * theta
         H[np.diag_indices_from(H)] += self.prior_precision
         E = loss + self.penalty(theta)

@@ -16,17 +16,20 @@ from .._kernels.tempered_dispatch import binary_indexed, binary_loss, multiclass
 class BiTemperedLikelihood:
     """Weighted bi-tempered loss sum and its gradient in the linear predictor.
 
-    Two entry points share the kernels and their arithmetic:
+    ``loss_grad`` serves every design's gradient pass (``design.loss_grad``):
+    ``LinearDesign`` hands it row spans on worker threads, a source design
+    the spans of one block at a time; the kernels run serially inside a
+    worker.
 
-    - :meth:`loss_grad` for the in-memory gradient pass
-      (``LinearDesign.loss_grad`` hands it row spans on worker threads, each
-      span's predictor, loss and gradient while the span of X is in cache;
-      the kernels run serially inside a worker).  For K > 2 each row's
-      tempered-softmax normaliser is kept from one pass to the next as
-      Newton's starting point; ``warm`` says whether the kept values are
-      valid, and is set by the caller between passes, never inside one.
-    - :meth:`value_grad` for the blocks of an out-of-core pass (cold
-      normalisers: the blocks are not kept).
+    For K > 2 each row's tempered-softmax normaliser can be kept from one
+    pass to the next as Newton's starting point, which makes a pass much
+    cheaper once L-BFGS takes small steps.  The store exists once
+    :meth:`labels` was given the labels of every row of the fit (a design
+    that does not hold its labels); ``wants_rows`` then asks the design for
+    each span's row range. ``warm`` says whether the kept values are valid,
+    and is set by the caller between passes, never inside one.  Labels that
+    live in a source arrive per block, with no stable row numbers: those
+    normalisers start cold.
 
     Parameters
     ----------
@@ -34,48 +37,56 @@ class BiTemperedLikelihood:
         Checked by the estimator.
     q : int
         1 for the binary model (activations (0, eta)), else K.
-    n_rows : int
-        Rows of the in-memory data (the normalisers kept between passes).
     """
 
-    wants_rows = True
-
-    def __init__(self, t1, t2, label_smoothing, q, n_rows):
+    def __init__(self, t1, t2, label_smoothing, q):
         self.t1, self.t2, self.ls, self.q = float(t1), float(t2), float(label_smoothing), q
         # Flops a row costs, compared with the pass's BLAS work: measured
         # per-row times of the kernels (benchmarks/README.md), in flops.
         self.work_per_row = 1000.0 * (q + 1)
-        self.normalisers = np.empty(n_rows) if q > 1 else None
+        # int64 codes, except for a binary model whose kernel reads the
+        # probability of class 1 (see ``binary_indexed``): float64 codes.
+        self.label_dtype = np.int64 if q > 1 or binary_indexed(self.t2) else np.float64
+        self.normalisers = None
         self.warm = False
         self._no_probabilities = np.empty((1, q))
 
+    @property
+    def wants_rows(self):
+        """Whether the design should pass each span's rows (the normalisers are kept)."""
+        return self.normalisers is not None
+
     def labels(self, codes):
-        """The kernels' labels of class codes (n,), converted once per fit.
+        """The kernels' labels (``label_dtype``) of class codes (n,), converted once per fit.
 
-        int64 codes, except for a binary model whose kernel reads the
-        probability of class 1 (see ``binary_indexed``): float64 codes.
+        ``codes`` None (a design that holds its labels): None, and labels
+        are converted block by block. Otherwise, for K > 2, the
+        normalisers of these rows are kept between passes (see the class).
         """
-        indexed = self.q > 1 or binary_indexed(self.t2)
-        dtype = np.int64 if indexed else np.float64
-        return np.require(codes, dtype=dtype, requirements=["C", "A", "W"])
+        if codes is None:
+            return None
+        if self.q > 1:
+            self.normalisers = np.empty(len(codes))
+            self.warm = False
+        return np.require(codes, dtype=self.label_dtype, requirements=["C", "A", "W"])
 
-    def loss_grad(self, y, eta, w, rows):
-        """Loss sum and gradient in eta (weights included) of rows ``rows`` (start, stop)."""
-        start, stop = rows
+    def loss_grad(self, y, eta, w, rows=None):
+        """Loss sum and gradient in eta (weights included) of a span of rows.
+
+        ``rows`` (start, stop): the span's rows of the fit, whose normalisers
+        are kept; None: cold normalisers.
+        """
+        if y.dtype != self.label_dtype:  # a source's block: encoded labels as they come
+            y = y.astype(self.label_dtype)
         with serial_kernels():
             if self.q == 1:
                 loss, dloss = self._binary(y, eta)
                 return float(w @ loss), dloss * w
-            loss, dloss = self._multiclass(y, eta, self.normalisers[start:stop], self.warm)
-        return float(w @ loss), dloss * w[:, None]
-
-    def value_grad(self, y, eta, w):
-        """Loss sum and gradient in eta of one out-of-core block (raw encoded labels)."""
-        y = self.labels(y)
-        if self.q == 1:
-            loss, dloss = self._binary(y, eta)
-            return float(w @ loss), dloss * w
-        loss, dloss = self._multiclass(y, eta, np.empty(eta.shape[0]), False)
+            if rows is None:
+                normalisers, warm = np.empty(eta.shape[0]), False
+            else:
+                normalisers, warm = self.normalisers[rows[0] : rows[1]], self.warm
+            loss, dloss = self._multiclass(y, eta, normalisers, warm)
         return float(w @ loss), dloss * w[:, None]
 
     def _binary(self, y, eta):

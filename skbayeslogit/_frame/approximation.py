@@ -1,7 +1,8 @@
 """The approximation self-check of a model on the rows of a frame.
 
 A model with a Laplace posterior (laplace, probit) is checked on the frame's
-rows it uses. One fitted through ``df.bayeslogit.fit`` is by default a
+rows it uses. One fitted through ``df.bayeslogit.fit`` is a FrameModel whose
+final estimator sees the encoded columns, by default a
 :class:`~skbayeslogit.standardized.StandardizedClassifier`: its wrapped
 estimator, whose posterior it is, saw the standardised features, so it is
 checked on those (the check's Pareto k does not depend on that linear
@@ -43,6 +44,9 @@ def approximation_check(df, target, model, dropna, options):
 
 def laplace_estimator(model, X):
     """The estimator with the Laplace posterior and the features it was fitted on."""
+    if hasattr(model, "pipeline_"):
+        # A FrameModel: its final estimator saw the encoded columns.
+        model, X = model.pipeline_[-1], model.transform(X)
     if hasattr(model, "check_approximation"):
         return model, X
     inner = getattr(model, "estimator_", None)

@@ -9,10 +9,13 @@ import pandas as pd
 from sklearn.base import clone
 from sklearn.model_selection import StratifiedKFold
 
-from .columns import checked_data, resolve_features
+from .columns import resolve_features
 from .evaluation import scores
 from .fitting import class_codes, record
+from .model import FrameModel, labels_of
+from .orientation import positive_index
 from .registry import MODELS, binary_only, build_estimator, model_label
+from .rows import missing_policy, rows_used
 
 _SCORES = ("accuracy", "log_loss", "brier", "ece")
 
@@ -53,7 +56,10 @@ def _skip_reason(model, available, n_classes):
 
 
 def runnable_models(models, available, n_classes, standardize, stacklevel=2):
-    """Unfitted estimators by label, leaving out (with a warning) those that cannot run."""
+    """Unfitted estimators by label, leaving out (with a warning) those that cannot run.
+
+    ``standardize`` wraps each in a StandardizedClassifier.
+    """
     runnable = []
     for label, m in _entries(models):
         reason = _skip_reason(m, available, n_classes)
@@ -66,19 +72,20 @@ def runnable_models(models, available, n_classes, standardize, stacklevel=2):
     return runnable
 
 
-def _fold_scores(est, X, y, folds, target):
+def _fold_scores(est, df, y, folds, target):
+    """Held-out scores of ``est`` (a FrameModel: each fold encodes its own training rows)."""
     # One untimed fit first: the first fit of a model in a process pays
     # one-off numba compilation, which is not the model's speed.
-    clone(est).fit(X.iloc[folds[0][0]], y[folds[0][0]])
+    clone(est).fit(df.iloc[folds[0][0]])
     per_fold = []
     for train, test in folds:
         fold_model = clone(est)
         start = time.perf_counter()
-        fold_model.fit(X.iloc[train], y[train])
+        fold_model.fit(df.iloc[train])
         fit_time = time.perf_counter() - start
-        P = np.asarray(fold_model.predict_proba(X.iloc[test]))
+        P = np.asarray(fold_model.predict_proba(df.iloc[test]))
         _, codes = class_codes(fold_model, y[test], target)
-        s = scores(P, codes, bins=10)
+        s = scores(P, codes, bins=10, positive=positive_index(fold_model, P.shape[1]))
         s["accuracy"] = float(np.mean(np.argmax(P, axis=1) == codes))
         s["fit_time"] = fit_time
         per_fold.append(s)
@@ -89,20 +96,34 @@ def _fold_scores(est, X, y, folds, target):
     return row
 
 
-def compare_models(df, target, features, models, cv, *, available, random_state, standardize,
-                   dropna):  # fmt: skip
+def compare_models(df, target, models, cv, *, available, random_state, standardize,
+                   options):  # fmt: skip
     """One row of held-out scores per model (see the accessor's ``compare``).
 
-    ``available`` lists the model names this installation can import.
+    ``available`` lists the model names this installation can import;
+    ``options`` holds the FrameModel keywords (features, positive, ...,
+    missing, and ``dropna``). The column roles are decided once, on the
+    whole frame, and every fold fits those same feature columns.
     Warnings point at the caller of the accessor method that calls this.
     """
-    feats = resolve_features(df, target, features)
-    X, y, keep = checked_data(df, target, feats, dropna, stacklevel=4)
+    options = dict(options)
+    options["missing"] = missing_policy(options.get("missing"), options.pop("dropna", False))
+    if options.get("features") is not None:
+        options["features"] = resolve_features(df, target, options["features"])
+    decided = FrameModel(None, target, **options).decide_roles(df)
+    options.update(features=decided.features, id=decided.ids or None, exclude=None)
+    options["positive"] = decided.positive
+    keep = rows_used(df, decided.features, target, options["missing"], stacklevel=4)
+    used = df if keep.all() else df.loc[keep]
+    y = labels_of(used[target])
     _check_folds(y, cv)
     n_classes = len(pd.unique(y))
-    runnable = runnable_models(models, available, n_classes, standardize, stacklevel=4)
-    folds = list(StratifiedKFold(cv, shuffle=True, random_state=random_state).split(X, y))
-    rows = {label: _fold_scores(est, X, y, folds, target) for label, est in runnable}
+    runnable = runnable_models(models, available, n_classes, False, stacklevel=4)
+    folds = list(StratifiedKFold(cv, shuffle=True, random_state=random_state).split(used, y))
+    rows = {}
+    for label, est in runnable:
+        frame_model = FrameModel(est, target, standardize=standardize, **options)
+        rows[label] = _fold_scores(frame_model, used, y, folds, target)
     out = pd.DataFrame.from_dict(rows, orient="index")
     out.index.name = "model"
     return record(out, keep, cv=cv, random_state=random_state, standardize=standardize)

@@ -7,3 +7,7 @@ class FrameInputError(ValueError):
 
 class LabelVariantWarning(UserWarning):
     """Target labels differ only by letter case or surrounding spaces."""
+
+
+class UnseenLevelWarning(UserWarning):
+    """Rows to score hold categorical levels the model was not fitted on (encoded as none)."""

@@ -10,6 +10,7 @@ import numpy as np
 import pandas as pd
 
 from .fitting import class_codes, fitted_on_frame, record
+from .orientation import positive_index
 
 # Warnings point at the user's call: table function -> accessor method -> user.
 _CALLER = 3
@@ -54,21 +55,22 @@ def reliability(prob, hit, bins):
     return table, ece
 
 
-def scores(P, codes, bins=10):
+def scores(P, codes, bins=10, positive=1):
     """Log loss, Brier score and ECE of probabilities P for class codes.
 
-    Binary (two columns): Brier and ECE on the probability of the second
-    class. Multiclass: Brier summed over classes (range [0, 2]) and the
-    class-wise ECE (mean of the one-vs-rest ECEs).
+    Binary (two columns): Brier and ECE on the probability of the class
+    ``positive`` (an index, default the second). Multiclass: Brier summed
+    over classes (range [0, 2]) and the class-wise ECE (mean of the
+    one-vs-rest ECEs).
     """
     n, K = P.shape
     rows = np.arange(n)
     eps = np.finfo(np.float64).eps
     log_loss = float(-np.mean(np.log(np.clip(P[rows, codes], eps, 1.0))))
     if K == 2:
-        hit = codes == 1
-        brier = float(np.mean((hit - P[:, 1]) ** 2))
-        _, ece = reliability(P[:, 1], hit, bins)
+        hit = codes == positive
+        brier = float(np.mean((hit - P[:, positive]) ** 2))
+        _, ece = reliability(P[:, positive], hit, bins)
         return {"log_loss": log_loss, "brier": brier, "ece": ece}
     onehot = np.zeros_like(P)
     onehot[rows, codes] = 1.0
@@ -102,16 +104,19 @@ def rates(table):
         }
 
 
-def _probabilities(df, target, model, dropna):
-    model, X, y, keep = fitted_on_frame(df, model, target, dropna, stacklevel=_CALLER + 2)
+def _probabilities(df, target, model, dropna, positive):
+    model, X, y, keep = fitted_on_frame(
+        df, model, target, dropna, stacklevel=_CALLER + 2, positive=positive
+    )
     classes, codes = class_codes(model, y, target)
-    return np.asarray(model.predict_proba(X)), classes, codes, keep
+    index = positive_index(model, len(classes), positive)
+    return np.asarray(model.predict_proba(X)), classes, codes, keep, index
 
 
-def confusion_table(df, target, model, threshold, dropna):
+def confusion_table(df, target, model, threshold, dropna, positive=None):
     """Counts and rates of the calls ``P(c | x) >= threshold`` (see the accessor)."""
-    P, classes, codes, keep = _probabilities(df, target, model, dropna)
-    shown = [1] if len(classes) == 2 else range(len(classes))
+    P, classes, codes, keep, index = _probabilities(df, target, model, dropna, positive)
+    shown = [index] if len(classes) == 2 else range(len(classes))
     rows = [
         {"threshold": threshold, "n": len(codes), **call_counts(codes == k, P[:, k] >= threshold)}
         for k in shown
@@ -125,15 +130,16 @@ def confusion_table(df, target, model, threshold, dropna):
     return record(out, keep, **extra)
 
 
-def calibration_table(df, target, model, bins, dropna):
+def calibration_table(df, target, model, bins, dropna, positive=None):
     """Reliability table with ECE, Brier score and log loss in attrs (see the accessor)."""
-    P, classes, codes, keep = _probabilities(df, target, model, dropna)
-    summary = scores(P, codes, bins)
+    P, classes, codes, keep, index = _probabilities(df, target, model, dropna, positive)
     if len(classes) == 2:
-        table, _ = reliability(P[:, 1], codes == 1, bins)
+        summary = scores(P, codes, bins, positive=index)
+        table, _ = reliability(P[:, index], codes == index, bins)
         out = pd.DataFrame(table)
-        extra = {"positive_class": classes[1]}
+        extra = {"positive_class": classes[index]}
     else:
+        summary = scores(P, codes, bins)
         parts, by_class = [], {}
         for k, c in enumerate(classes):
             table, ece = reliability(P[:, k], codes == k, bins)
@@ -166,15 +172,15 @@ def empirical_threshold(p, pos, c_fp, c_fn, prefer):
     return float(cuts[best[np.argmin(np.abs(cuts[best] - prefer))]])
 
 
-def cost_threshold_table(df, target, model, c_fp, c_fn, dropna):
+def cost_threshold_table(df, target, model, c_fp, c_fn, dropna, positive=None):
     """The decision-theoretic and the empirical cost threshold (see the accessor)."""
-    P, classes, codes, keep = _probabilities(df, target, model, dropna)
+    P, classes, codes, keep, index = _probabilities(df, target, model, dropna, positive)
     if len(classes) != 2:
         raise ValueError(
             f"cost_threshold needs a binary target; the model has {len(classes)} classes."
         )
-    p = P[:, 1]
-    pos = codes == 1
+    p = P[:, index]
+    pos = codes == index
     t_bayes = c_fp / (c_fp + c_fn)
     t_emp = empirical_threshold(p, pos, c_fp, c_fn, t_bayes)
     rows = [{"threshold": t, **call_counts(pos, p >= t)} for t in (t_bayes, t_emp)]
@@ -185,4 +191,6 @@ def cost_threshold_table(df, target, model, c_fp, c_fn, dropna):
     out["cost"] = c_fp * out["fp"] + c_fn * out["fn"]
     out["cost_per_row"] = out["cost"] / len(p)
     attrs = {"cost_fp": c_fp, "cost_fn": c_fn}
-    return record(out, keep, **attrs, positive_class=classes[1], negative_class=classes[0])
+    return record(
+        out, keep, **attrs, positive_class=classes[index], negative_class=classes[1 - index]
+    )

@@ -1,8 +1,9 @@
 """A fitted model and the rows it sees: fit one on a frame, or use a fitted one.
 
-A model given by name or as an unfitted estimator is fitted on the frame
-(the target and every numeric column but the target); a fitted one is used
-as is, on the columns it records in ``feature_names_in_``.
+A model given by name or as an unfitted estimator is fitted on the frame as
+a :class:`~skbayeslogit._frame.model.FrameModel` (column roles decided once,
+categorical columns encoded); a fitted one is used as is: a FrameModel on
+its own feature columns, any other estimator on ``feature_names_in_``.
 """
 
 import copy
@@ -10,32 +11,65 @@ import copy
 import numpy as np
 import pandas as pd
 
-from .columns import checked_data, model_data, resolve_features
+from .columns import model_data, require_columns, resolve_features
+from .model import FrameModel
+from .posterior_view import coefficient_table, labels_of
+
+__all__ = ["coefficient_table", "evidence_of_columns", "fit_on_frame", "fitted_on_frame"]
 from .registry import build_estimator, is_fitted
+from .rows import missing_policy, rows_used
 
 
-def fit_on_frame(df, target, features, model, standardize, dropna, params, stacklevel=2):
+def fit_on_frame(df, target, model, options, params):
     """Fit ``model`` (a name or an estimator, cloned) to columns of ``df``.
+
+    Parameters
+    ----------
+    df : pandas.DataFrame
+    target : str
+    model : name or estimator
+    options : dict
+        FrameModel keywords: features, positive, weight, id, exclude,
+        missing, max_levels, standardize; and ``dropna`` (True means
+        ``missing="drop"``).
+    params : dict
+        Constructor parameters of the estimator.
 
     Returns
     -------
-    estimator
-        Fitted, with ``target_name_`` the target column.
+    FrameModel
+        Fitted.
     """
-    feats = resolve_features(df, target, features)
-    X, y, _ = checked_data(df, target, feats, dropna, stacklevel=stacklevel + 1)
-    est = build_estimator(model, params, standardize)
-    est.fit(X, y)
-    est.target_name_ = target
-    return est
+    options = dict(options)
+    options["missing"] = missing_policy(options.get("missing"), options.pop("dropna", False))
+    features = options.get("features")
+    if features is not None:
+        options["features"] = resolve_features(df, target, features)
+    require_columns(df, [target, *(options.get("features") or [])])
+    est = build_estimator(model, params, standardize=False)
+    frame_model = FrameModel(est, target, **options)
+    return frame_model.fit(df)
 
 
-def fitted_on_frame(df, model, target, dropna, features=None, stacklevel=2):
+def evidence_of_columns(model, df=None):
+    """A fitted model's column evidence (refitted on ``df`` when given), or a TypeError."""
+    if not hasattr(model, "column_evidence"):
+        raise TypeError(
+            f"{type(model).__name__} gives no column evidence; use a model from "
+            "df.bayeslogit.fit with a Gaussian posterior (laplace, probit)."
+        )
+    if isinstance(model, FrameModel):
+        return model.column_evidence(df)
+    return model.column_evidence()
+
+
+def fitted_on_frame(df, model, target, dropna, features=None, stacklevel=2, positive=None):
     """A fitted model and the data it sees: use a fitted one, fit anything else.
 
     Returns
     -------
     model, X, y, keep
+        ``X`` holds the rows used (a FrameModel encodes them itself);
         ``keep`` marks the rows of ``df`` used.
     """
     if model is None:
@@ -43,9 +77,29 @@ def fitted_on_frame(df, model, target, dropna, features=None, stacklevel=2):
     if is_fitted(model):
         if not hasattr(model, "predict_proba"):
             raise TypeError(f"model must have predict_proba; got {type(model).__name__}.")
-        return (model, *model_data(df, model, target, dropna, stacklevel=stacklevel + 1))
-    est = fit_on_frame(df, target, features, model, True, dropna, {}, stacklevel + 1)
-    return (est, *model_data(df, est, target, dropna, warn=False))
+        return (model, *model_rows(df, model, target, dropna, stacklevel=stacklevel + 1))
+    options = {"features": features, "positive": positive, "dropna": dropna}
+    est = fit_on_frame(df, target, model, options, {})
+    return (est, *model_rows(df, est, target, dropna, warn=False))
+
+
+def model_rows(df, model, target, dropna, warn=True, stacklevel=2):
+    """The rows of ``df`` a fitted model scores, its input there, and the labels.
+
+    Returns
+    -------
+    X, y, keep
+        ``y`` is None when ``target`` is None.
+    """
+    if not isinstance(model, FrameModel):
+        return model_data(df, model, target, dropna, warn, stacklevel + 1)
+    feats = list(model.feature_names_in_)
+    require_columns(df, feats + ([] if target is None else [target]))
+    policy = "drop" if dropna else model.missing
+    keep = rows_used(df, feats, target, policy, warn=warn, stacklevel=stacklevel + 1)
+    used = df if keep.all() else df.loc[keep]
+    y = None if target is None else labels_of(used[target])
+    return used, y, keep
 
 
 def class_codes(model, y, target):
@@ -78,38 +132,3 @@ def record(result, keep, **attrs):
     result.attrs.update(attrs)
     result.attrs["rows_dropped"] = int((~keep).sum())
     return result
-
-
-def coefficient_table(model, level):
-    """Coefficient table on both scales; estimates only for a model without ``coef_table``.
-
-    Parameters
-    ----------
-    model : fitted estimator (bare or standardised)
-    level : float in (0, 1)
-        Credible level of the bounds, for models with ``coef_table``.
-
-    Returns
-    -------
-    pandas.DataFrame
-        Indexed by parameter (binary) or (class, parameter).
-    """
-    if hasattr(model, "coef_table"):
-        return model.coef_table(level)
-    inner = getattr(model, "estimator_", model)
-    names = list(model.feature_names_in_)
-    classes = [str(c) for c in model.classes_]
-    coef_std = np.atleast_2d(inner.coef_)
-    coef_orig = np.atleast_2d(model.coef_)
-    int_std = np.atleast_1d(inner.intercept_)
-    int_orig = np.atleast_1d(model.intercept_)
-    rows = []
-    for k in range(coef_std.shape[0]):
-        label = classes[1] if coef_std.shape[0] == 1 else classes[k]
-        for j, name in enumerate(names):
-            rows.append((label, name, coef_std[k, j], coef_orig[k, j]))
-        rows.append((label, "intercept", int_std[k], int_orig[k]))
-    table = pd.DataFrame(rows, columns=["class", "parameter", "estimate", "estimate_original"])
-    if coef_std.shape[0] == 1:
-        return table.drop(columns="class").set_index("parameter")
-    return table.set_index(["class", "parameter"])

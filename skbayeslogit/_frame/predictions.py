@@ -4,8 +4,9 @@ import warnings
 
 import numpy as np
 
-from .columns import model_data
-from .fitting import class_codes, fitted_on_frame, record, rows_with
+from .errors import UnseenLevelWarning
+from .fitting import class_codes, fitted_on_frame, model_rows, record, rows_with
+from .orientation import positive_index, probability_columns
 from .registry import is_fitted, model_label
 
 # Warnings point at the user's call: this module -> accessor method -> user.
@@ -18,27 +19,33 @@ def prediction_table(df, model, level, dropna):
         raise TypeError(
             "predict_table needs a fitted model; fit one first with df.bayeslogit.fit."
         )
-    X, _, keep = model_data(df, model, None, dropna, stacklevel=_CALLER + 1)
+    X, _, keep = model_rows(df, model, None, dropna, stacklevel=_CALLER + 1)
     classes = np.asarray(model.classes_)
-    P = np.asarray(model.predict_proba(X))
-    bounds = model.predict_interval(X, level=level) if hasattr(model, "predict_interval") else None
-    shown = [1] if len(classes) == 2 else range(len(classes))
-    new = {}
-    for k in shown:
-        name = f"prob_{classes[k]}"
-        new[name] = P[:, k]
-        if bounds is not None:
-            lo, hi = (np.asarray(b) for b in bounds)
-            new[f"{name}_lower"] = lo if lo.ndim == 1 else lo[:, k]
-            new[f"{name}_upper"] = hi if hi.ndim == 1 else hi[:, k]
-    new["predicted_label"] = classes[np.argmax(P, axis=1)]
+    if hasattr(model, "probability_table"):
+        found = model.probability_table(X, level=level)
+        new = {c: found[c].to_numpy() for c in found.columns}
+        extra = {"unseen_levels": found.attrs["unseen_levels"]}
+        if extra["unseen_levels"]:
+            counts = ", ".join(f"{c}: {k}" for c, k in extra["unseen_levels"].items())
+            warnings.warn(
+                f"levels not seen in fitting, scored as no level of their column ({counts}).",
+                UnseenLevelWarning,
+                stacklevel=_CALLER,
+            )
+    else:
+        P = np.asarray(model.predict_proba(X))
+        bounds = None
+        if hasattr(model, "predict_interval"):
+            bounds = model.predict_interval(X, level=level)
+        new = probability_columns(P, bounds, classes, positive_index(model, len(classes)))
+        extra = {}
     clash = [c for c in new if c in df.columns]
     if clash:
         raise ValueError(
             f"the frame already has column(s) {', '.join(clash)}; drop or rename them "
             "before predict_table adds its own."
         )
-    return record(rows_with(df, keep, **new), keep, level=level)
+    return record(rows_with(df, keep, **new), keep, level=level, **extra)
 
 
 def default_doubt_model(available):
@@ -55,10 +62,10 @@ def default_doubt_model(available):
     return "laplace"
 
 
-def doubtful_rows(df, target, model, top, features, dropna):
+def doubtful_rows(df, target, model, top, features, dropna, positive=None):
     """The rows ranked by doubt about their recorded label (see ``doubtful_labels``)."""
     model, X, y, keep = fitted_on_frame(
-        df, model, target, dropna, features=features, stacklevel=_CALLER + 1
+        df, model, target, dropna, features=features, stacklevel=_CALLER + 1, positive=positive
     )
     classes, codes = class_codes(model, y, target)
     P = np.asarray(model.predict_proba(X))
@@ -80,4 +87,5 @@ def doubtful_rows(df, target, model, top, features, dropna):
         prob_recorded_label=p_rec[order],
         most_likely_label=classes[np.argmax(P[order], axis=1)],
     )
-    return record(out, keep, scorer=scorer, model=model_label(model))
+    ids = list(getattr(model, "id_columns_", []))
+    return record(out, keep, scorer=scorer, model=model_label(model), id_columns=ids)

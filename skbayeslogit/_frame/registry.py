@@ -38,6 +38,7 @@ MODELS = {
         ModelRecord("laplace", "LaplaceLogisticClassifier", "Bayesian logistic (Laplace)"),
         ModelRecord("probit", "ProbitClassifier", "Bayesian probit (Laplace)"),
         ModelRecord("tempered", "TemperedLogisticClassifier", "Bi-tempered logistic (robust)"),
+        ModelRecord("labelflip", "LabelFlipLogisticClassifier", "Label-flip logistic (Laplace)"),
     )
 }
 
@@ -96,7 +97,7 @@ def make_model(name, **params):
 
     Parameters
     ----------
-    name : {"laplace", "probit", "tempered"}
+    name : {"laplace", "probit", "tempered", "labelflip"}
     **params
         Constructor keyword arguments.
 

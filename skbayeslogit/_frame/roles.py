@@ -355,6 +355,9 @@ def _decide(col, name, context, statements):
         return _row(name, facts, "id", kind, "given as id=")
     if name in given["weight="]:
         return _row(name, facts, "weight", kind, "given as weight=")
+    if given["features="] and not explicit:
+        # Not used, so not a leak even when it copies the target.
+        return _row(name, facts, "left out", kind, "not among features=")
     copy = _is_target_copy(facts, col, name, target, tcodes)
     if copy:
         raise FrameInputError(
@@ -365,14 +368,16 @@ def _decide(col, name, context, statements):
         if explicit:
             raise FrameInputError(f"column {name!r} is a saved row index, not a feature.")
         return _row(name, facts, "left out", kind, "saved row index (pandas-added column)")
-    if given["features="] and not explicit:
-        return _row(name, facts, "left out", kind, "not among features=")
     if not explicit:
         why = _auto_id(facts, col, name, n)
         if why:
             statements.append(f"column {name!r} {why}; pass features=[...] to use it")
             return _row(name, facts, "id", kind, why)
     role, reason = _feature_or_reason(facts, col, max_levels, unparsed)
+    if role == "left out" and explicit and kind == "numeric" and facts.distinct == 1:
+        # Asked for by name: a constant number is harmless (its slope is not
+        # identified without a prior, and the estimator says so).
+        return _row(name, facts, "feature", kind, "given in features= (constant)")
     if role == "left out":
         if explicit:
             raise FrameInputError(f"feature column {name!r} cannot be used: {reason}.")

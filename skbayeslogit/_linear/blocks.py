@@ -36,29 +36,6 @@ def loss_piece(X, y, w, likelihood, theta, q, fit_intercept):
     return np.array([LinearDesign(as_block(X), q, fit_intercept).loss(likelihood, theta, y, w)])
 
 
-def value_grad_piece(X, y, w, pointwise, theta, q, fit_intercept):
-    """[sum of row losses, gradient] of one block for a pointwise loss.
-
-    ``pointwise.value_grad(y, eta, w)`` returns the weighted loss sum and its
-    gradient with respect to eta (weights included); the gradient in the
-    parameters is one product with the block.
-    """
-    X = as_block(X)
-    eta = LinearDesign(X, q, fit_intercept).linear_predictor(theta)
-    value, g_eta = pointwise.value_grad(y, eta, w)
-    # np.dot, not @: dask may run pieces on threads, and matmul keeps the
-    # GIL for results this small (see LinearDesign._loss_grad_hess_binary).
-    if q == 1:
-        parts = [[value], np.dot(X.T, g_eta)]
-        if fit_intercept:
-            parts.append([g_eta.sum()])
-    else:
-        parts = [[value], np.dot(g_eta.T, X).ravel()]
-        if fit_intercept:
-            parts.append(g_eta.sum(axis=0))
-    return np.concatenate(parts)
-
-
 def perfect_piece(X, y, w, likelihood, theta, q, fit_intercept):
     """[rows of positive weight fitted with certainty] of one block (``count_perfect``)."""
     design = LinearDesign(as_block(X), q, fit_intercept)

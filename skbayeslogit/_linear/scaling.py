@@ -1,39 +1,6 @@
-"""Parameters of centred, unit-spread columns, and the weighted column moments they need."""
+"""Parameters of centred, unit-spread columns: the units the L-BFGS driver works in."""
 
 import numpy as np
-
-# Bytes of X centred and squared at a time by weighted_column_moments.
-_BLOCK_BYTES = 1 << 20
-
-
-def weighted_column_moments(X, w, centred=True):
-    """Weighted column means and sds of an in-memory X.
-
-    Parameters
-    ----------
-    X : ndarray of shape (n, d)
-        Never written to.
-    w : ndarray of shape (n,)
-        Non-negative weights with a positive sum.
-    centred : bool, default=True
-        False: zero centres, and the root mean square as the spread.
-
-    Returns
-    -------
-    centre, spread : ndarray of shape (d,)
-        As ``SourceDesign.column_moments`` gives them for out-of-core data.
-    """
-    d = X.shape[1]
-    total = float(w.sum())
-    centre = (w @ X) / total if centred else np.zeros(d)
-    # Blocks of rows: no temporary the size of X (np.average makes two).
-    square = np.zeros(d)
-    rows = max(1, _BLOCK_BYTES // (8 * max(d, 1)))
-    for start in range(0, X.shape[0], rows):
-        block = X[start : start + rows] - centre
-        np.square(block, out=block)
-        square += w[start : start + rows] @ block
-    return centre, np.sqrt(square / total)
 
 
 class ColumnScaling:
@@ -57,6 +24,20 @@ class ColumnScaling:
         self.layout = layout
         self.centre = centre
         self.spread = np.where(spread > 0, spread, 1.0)
+
+    @classmethod
+    def of_design(cls, design, w=None):
+        """The scaling of a design's columns: weighted moments, centred with an intercept.
+
+        Parameters
+        ----------
+        design : DesignBase
+            Asked for ``column_moments(w, centred=fit_intercept)``.
+        w : ndarray of shape (n,) or None
+            Row weights of a design that does not hold them.
+        """
+        centre, spread = design.column_moments(w, centred=design.fit_intercept)
+        return cls(centre, spread, design.layout)
 
     def to_theta(self, u):
         """theta of the scaled parameters u."""

@@ -49,7 +49,6 @@ from .blocks import (
     newton_piece,
     perfect_piece,
     stats_piece,
-    value_grad_piece,
 )
 from .columns import moments_from_sums
 from .dask_io import dask_aware, is_dask_collection, require_dask
@@ -62,7 +61,6 @@ __all__ = [
     "SourceDesign",
     "dask_aware",
     "fit_data",
-    "fit_design",
     "is_dask_collection",
     "is_out_of_core",
     "make_source",
@@ -305,17 +303,15 @@ class SourceDesign(DesignBase):
     n_outputs : int
     fit_intercept : bool
     stats : dict
-        From ``blocks.check_source``.
+        From ``blocks.check_source``: the weight total, column moments and
+        ranges are kept from it.
     """
-
-    #: Kept for callers not yet asking the design protocol (the tempered fit).
-    out_of_core = True
 
     def __init__(self, source, n_outputs, fit_intercept, stats):
         super().__init__(source.n, source.d, n_outputs, fit_intercept)
         self.source = source
-        self.stats = stats
-        self.total_weight = stats["w_sum"]
+        self._column_sums = (stats["w_sum"], stats["mean"], stats["m2"])
+        self._column_max_abs = stats["colmax"]
 
     def _reduce(self, piece, theta, likelihood):
         """``source.reduce`` of a block piece at ``theta``."""
@@ -339,11 +335,6 @@ class SourceDesign(DesignBase):
         """Loss sum at ``theta`` (a pass that recomputes eta block by block)."""
         return float(self._reduce(loss_piece, theta, likelihood)[0])
 
-    def value_grad(self, pointwise, theta):
-        """Loss sum and parameter gradient of a pointwise loss (see ``value_grad_piece``)."""
-        out = self._reduce(value_grad_piece, theta, pointwise)
-        return float(out[0]), out[1:]
-
     def count_perfect(self, likelihood, theta, y=None, w=None, eta=None):
         """Rows of positive weight whose label is fitted with certainty (one pass)."""
         return int(self._reduce(perfect_piece, theta, likelihood)[0])
@@ -354,16 +345,15 @@ class SourceDesign(DesignBase):
 
     def weight_total(self, w=None):
         """Sum of the row weights, from the validation pass."""
-        return self.total_weight
+        return self._column_sums[0]
 
     def column_moments(self, w=None, centred=True):
         """Weighted column centre and spread, merged from the validation pass."""
-        st = self.stats
-        return moments_from_sums(st["w_sum"], st["mean"], st["m2"], centred)
+        return moments_from_sums(*self._column_sums, centred)
 
     def column_max_abs(self):
         """Largest |x| of each column, from the validation pass."""
-        return self.stats["colmax"]
+        return self._column_max_abs
 
     def rows_in_memory(self, y=None, w=None):
         """None: the rows stay in the source."""
@@ -436,21 +426,3 @@ def fit_data(X, y, sample_weight, *, fit_intercept, binary_only, validate):
     q = 1 if len(classes) == 2 else len(classes)
     y_fit = codes.astype(np.float64) if q == 1 else codes
     return FitData(LinearDesign(X, q, fit_intercept), y_fit, w, classes, X.shape[1], names)
-
-
-def fit_design(estimator, X, y, sample_weight, fit_intercept):
-    """Validate out-of-core fit input, record its classes and features, wrap it.
-
-    Kept for the tempered fit, which asks :func:`is_out_of_core` itself;
-    :func:`fit_data` serves both kinds of input.
-    """
-    data = fit_data(
-        X,
-        y,
-        sample_weight,
-        fit_intercept=fit_intercept,
-        binary_only=getattr(estimator, "binary_only", False),
-        validate=None,
-    )
-    data.record(estimator)
-    return data.design

@@ -22,6 +22,8 @@ SUFFIX = ".skops"
 #: new type fails a test instead of being trusted silently.
 TRUSTED_TYPES = (
     "skbayeslogit._fit.posterior.GaussianPosterior",
+    "skbayeslogit._frame.model.FrameModel",
+    "skbayeslogit.labelflip.LabelFlipLogisticClassifier",
     "skbayeslogit.laplace.LaplaceLogisticClassifier",
     "skbayeslogit.probit.ProbitClassifier",
     "skbayeslogit.standardized.StandardizedClassifier",

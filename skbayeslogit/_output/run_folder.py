@@ -178,10 +178,14 @@ class RunFolder:
         raise OutputError(f"{self.option} {self.target}: other runs kept replacing it; try again")
 
     def _move_aside(self):
-        """Rename the existing target (ours, checked again) out of the way; its new path."""
-        if not self.target.exists():
-            return None
-        _check_target(self.target, self.option)
+        """Rename the existing target out of the way; its new path, or None when there is none.
+
+        The target is renamed first and checked where no other run can reach
+        it: checking it in place raced with runs that replaced it meanwhile.
+        A folder that turns out not to be ours goes back where it was.
+        """
+        if self.target.is_symlink() or (self.target.exists() and not self.target.is_dir()):
+            _check_target(self.target, self.option)  # raises, naming the problem
         old = Path(tempfile.mkdtemp(prefix=f".{self.target.name}.old-", dir=self.target.parent))
         try:
             os.rename(self.target, old)
@@ -193,6 +197,16 @@ class RunFolder:
             raise OutputError(
                 f"cannot replace {self.option} {self.target}: {os_reason(exc)}"
             ) from exc
+        if any(old.iterdir()) and not is_our_folder(old):
+            try:
+                os.rename(old, self.target)
+                where = self.target
+            except OSError:
+                where = old
+            raise OutputError(
+                f"{self.option} {self.target} became a folder that skbayeslogit did not write; "
+                f"refusing to replace it (it is at {where})"
+            )
         return old
 
 

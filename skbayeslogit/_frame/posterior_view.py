@@ -1,0 +1,172 @@
+"""What a fitted FrameModel says about its posterior, turned to its positive class.
+
+:class:`FramePosterior` is the part of
+:class:`~skbayeslogit._frame.model.FrameModel` that reads the final
+estimator's posterior: credible bounds, latent moments, label doubt,
+draws, the coefficient table (``column=level`` names, both scales) and the
+Bayes factor of every original column. A method is present only when the
+final estimator has it.
+"""
+
+import numpy as np
+import pandas as pd
+from sklearn.utils.metaestimators import available_if
+from sklearn.utils.validation import check_is_fitted
+
+from .._checks.inputs import check_level
+from .orientation import oriented_bounds, oriented_coefficients
+from .rows import missing_policy, rows_used
+
+
+def final_has(name):
+    """available_if check: the final estimator (fitted, or the unfitted one) has ``name``."""
+
+    def check(self):
+        final = self.pipeline_[-1] if hasattr(self, "pipeline_") else self.estimator
+        return hasattr(final, name)
+
+    return check
+
+
+def as_frame(X):
+    """``X`` itself when it is a DataFrame; a TypeError otherwise."""
+    if not isinstance(X, pd.DataFrame):
+        raise TypeError(
+            f"a FrameModel reads columns by name: pass a pandas DataFrame, not {type(X).__name__}."
+        )
+    return X
+
+
+def labels_of(col):
+    """The label column as an array: object for text and categories, else its own dtype."""
+    is_text = pd.api.types.is_string_dtype(col.dtype) or isinstance(col.dtype, pd.CategoricalDtype)
+    return np.asarray(col.to_numpy(dtype=object) if is_text else col.to_numpy())
+
+
+class FramePosterior:
+    """Posterior methods of a FrameModel (a mixin: needs ``pipeline_``, ``transform``)."""
+
+    @available_if(final_has("predict_interval"))
+    def predict_interval(self, X, level=0.9):
+        """Credible bounds of the class probabilities.
+
+        Returns
+        -------
+        lower, upper : ndarray
+            Binary: shape (n,), bounds of P(``positive_`` | x). Multiclass:
+            shape (n, K), columns in ``classes_`` order.
+        """
+        lower, upper = self.pipeline_[-1].predict_interval(self.transform(X), level=level)
+        return oriented_bounds(lower, upper, self.positive_index_)
+
+    @available_if(final_has("logit_moments"))
+    def logit_moments(self, X):
+        """Posterior mean and variance of the latent linear predictor.
+
+        Binary: of the log-odds (or probit index) of ``positive_``.
+        """
+        mean, var = self.pipeline_[-1].logit_moments(self.transform(X))
+        if self.positive_index_ == 0:
+            mean = -np.asarray(mean)
+        return mean, var
+
+    @available_if(final_has("label_doubt"))
+    def label_doubt(self, X, y):
+        """The estimator's per-row doubt about the recorded labels ``y``."""
+        return self.pipeline_[-1].label_doubt(self.transform(X), y)
+
+    @available_if(final_has("sample_coef"))
+    def sample_coef(self, n, random_state=None):
+        """Posterior draws, columns in the order of ``feature_names_out_`` then intercept(s).
+
+        Binary draws are of the log-odds of ``classes_[1]``, as ``coef_``.
+        """
+        return self.pipeline_[-1].sample_coef(n, random_state=random_state)
+
+    # -- the posterior -----------------------------------------------------------------
+    @available_if(final_has("coef_table"))
+    def coef_table(self, level=0.9):
+        """Coefficients of the encoded columns (``column=level``), on both scales.
+
+        Binary: of the log-odds of ``positive_`` (signs and bounds flipped
+        when it is ``classes_[0]``). Only for an estimator with a posterior;
+        :func:`coefficient_table` gives the estimates of any linear one.
+
+        Returns
+        -------
+        pandas.DataFrame
+            See :meth:`StandardizedClassifier.coef_table`;
+            ``attrs["positive_class"]`` names the class (binary).
+        """
+        check_is_fitted(self, "pipeline_")
+        table = self.pipeline_[-1].coef_table(check_level(level))
+        return oriented_coefficients(table, self.classes_, self.positive_index_)
+
+    @available_if(final_has("column_evidence"))
+    def column_evidence(self, X=None):
+        """Bayes factor of "no effect" per ORIGINAL column (levels grouped).
+
+        Parameters
+        ----------
+        X : pandas.DataFrame, optional
+            None: the closed-form Savage-Dickey ratio of the fitted posterior.
+            A table (with the target, and the weight column if any): the
+            ratio of Laplace evidences refitted on its rows, one fit per
+            column.
+
+        Returns
+        -------
+        pandas.DataFrame
+            Indexed by original column: ``n_parameters``,
+            ``log10_bf_no_effect`` (positive favours no effect),
+            ``evidence``, ``method``.
+        """
+        check_is_fitted(self, "pipeline_")
+        final = self.pipeline_[-1]
+        if X is None:
+            return final.column_evidence(self.groups_)
+        df = as_frame(X)
+        policy = missing_policy(self.missing)
+        keep = rows_used(df, list(self.feature_names_in_), self.target, policy, stacklevel=3)
+        used = df if keep.all() else df.loc[keep]
+        w = None if self.weight_column_ is None else used[self.weight_column_].to_numpy(float)
+        Z = self.transform(used)
+        return final.column_evidence(self.groups_, Z, labels_of(used[self.target]), w)
+
+
+def coefficient_table(model, level):
+    """Coefficient table on both scales; estimates only for a model without ``coef_table``.
+
+    Parameters
+    ----------
+    model : fitted estimator (bare or standardised) or FrameModel
+    level : float in (0, 1)
+        Credible level of the bounds, for models with ``coef_table``.
+
+    Returns
+    -------
+    pandas.DataFrame
+        Indexed by parameter (binary) or (class, parameter); a FrameModel's
+        binary table is of its positive class.
+    """
+    if hasattr(model, "coef_table"):
+        return model.coef_table(level)
+    inner = getattr(model, "estimator_", model)
+    names = list(getattr(model, "feature_names_out_", model.feature_names_in_))
+    classes = [str(c) for c in model.classes_]
+    coef_std = np.atleast_2d(inner.coef_)
+    coef_orig = np.atleast_2d(model.coef_)
+    int_std = np.atleast_1d(inner.intercept_)
+    int_orig = np.atleast_1d(model.intercept_)
+    rows = []
+    for k in range(coef_std.shape[0]):
+        label = classes[1] if coef_std.shape[0] == 1 else classes[k]
+        for j, name in enumerate(names):
+            rows.append((label, name, coef_std[k, j], coef_orig[k, j]))
+        rows.append((label, "intercept", int_std[k], int_orig[k]))
+    table = pd.DataFrame(rows, columns=["class", "parameter", "estimate", "estimate_original"])
+    if coef_std.shape[0] > 1:
+        return table.set_index(["class", "parameter"])
+    table = table.drop(columns="class").set_index("parameter")
+    index = getattr(model, "positive_index_", None)
+    return table if index is None else oriented_coefficients(table, model.classes_, index)
