@@ -8,6 +8,8 @@ Bayes factor of every original column. A method is present only when the
 final estimator has it.
 """
 
+import inspect
+
 import numpy as np
 import pandas as pd
 from sklearn.utils.metaestimators import available_if
@@ -75,6 +77,16 @@ class FramePosterior:
         """The estimator's per-row doubt about the recorded labels ``y``."""
         return self.pipeline_[-1].label_doubt(self.transform(X), y)
 
+    @available_if(final_has("flip_probability"))
+    def flip_probability(self, X, y):
+        """Posterior probability that each recorded label ``y`` was flipped (label-flip model)."""
+        return self.pipeline_[-1].flip_probability(self.transform(X), y)
+
+    @available_if(final_has("predict_recorded_proba"))
+    def predict_recorded_proba(self, X):
+        """Probabilities of the label as recorded, flips included (label-flip model)."""
+        return self.pipeline_[-1].predict_recorded_proba(self.transform(X))
+
     @available_if(final_has("sample_coef"))
     def sample_coef(self, n, random_state=None):
         """Posterior draws, columns in the order of ``feature_names_out_`` then intercept(s).
@@ -85,12 +97,19 @@ class FramePosterior:
 
     # -- the posterior -----------------------------------------------------------------
     @available_if(final_has("coef_table"))
-    def coef_table(self, level=0.9):
-        """Coefficients of the encoded columns (``column=level``), on both scales.
+    def coef_table(self, level=0.9, scale="both"):
+        """Coefficients of the encoded columns (``column=level``), on the chosen scale(s).
 
         Binary: of the log-odds of ``positive_`` (signs and bounds flipped
         when it is ``classes_[0]``). Only for an estimator with a posterior;
         :func:`coefficient_table` gives the estimates of any linear one.
+
+        Parameters
+        ----------
+        level : float in (0, 1)
+        scale : {"both", "standardized", "original"}, default="both"
+            As in :meth:`StandardizedClassifier.coef_table`; a model fitted
+            with ``standardize=False`` has the original scale only.
 
         Returns
         -------
@@ -99,7 +118,16 @@ class FramePosterior:
             ``attrs["positive_class"]`` names the class (binary).
         """
         check_is_fitted(self, "pipeline_")
-        table = self.pipeline_[-1].coef_table(check_level(level))
+        final = self.pipeline_[-1]
+        if "scale" in inspect.signature(final.coef_table).parameters:
+            table = final.coef_table(check_level(level), scale=scale)
+        elif scale in ("both", "original"):
+            table = final.coef_table(check_level(level))
+        else:
+            raise ValueError(
+                f"scale={scale!r}: this model was fitted with standardize=False and has "
+                "coefficients on the original scale only."
+            )
         return oriented_coefficients(table, self.classes_, self.positive_index_)
 
     @available_if(final_has("column_evidence"))
