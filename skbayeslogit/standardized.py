@@ -19,6 +19,7 @@ from sklearn.utils.validation import check_is_fitted, validate_data
 
 from ._checks.inputs import (
     check_level,
+    check_magnitude,
     check_options,
     check_positive_int,
     reject_non_numeric_frame,
@@ -130,6 +131,9 @@ class StandardizedClassifier(ClassifierMixin, BaseEstimator):
         self._parameter_constraints.check(self)
         reject_non_numeric_frame(X)
         X = validate_data(self, X, dtype=np.float64, ensure_all_finite=True)
+        # The estimators' magnitude rule, before any arithmetic: the sd of a
+        # column scaled by 1e200 overflows to inf and the column became zeros.
+        check_magnitude(X)
         fit_intercept = getattr(self.estimator, "fit_intercept", True)
         mean, sd = column_moments(X)
         self.center_ = mean if fit_intercept else np.zeros(X.shape[1])

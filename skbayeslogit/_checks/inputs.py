@@ -8,10 +8,13 @@ checks and the accessor call these; ``params`` declares the parameters'
 constraints.
 """
 
+import warnings
+
 import numpy as np
 import pandas as pd
 from sklearn.utils.validation import _check_sample_weight
 
+from .._frame.errors import LabelVariantWarning
 from .._linear.columns import column_range, overall_range
 from .params import Boolean, Options, PositiveFloat, PositiveInt, Probability, Scale
 
@@ -238,6 +241,28 @@ def as_labels(y):
 _DENSE_CODE_RANGE = 1 << 20  # integer labels spanning at most this use counting
 
 
+def warn_label_variants(classes):
+    """Warn, naming them, when string classes differ only by case or surrounding spaces.
+
+    "yes", "Yes " and "YES" are most likely one answer typed three ways; a
+    classifier fits them as three classes, which is worth saying (the table
+    layer says the same of a target column).
+    """
+    groups = {}
+    for label in classes:
+        if isinstance(label, str):
+            groups.setdefault(label.strip().casefold(), []).append(label)
+    for variants in groups.values():
+        if len(variants) > 1:
+            named = ", ".join(repr(str(v)) for v in variants)
+            warnings.warn(
+                f"y has labels that differ only by case or surrounding spaces: {named}; "
+                "they are fitted as different classes.",
+                LabelVariantWarning,
+                stacklevel=4,
+            )
+
+
 def encode_labels(y):
     """Sorted distinct labels and each row's code, as ``np.unique(y, return_inverse=True)``.
 
@@ -260,9 +285,9 @@ def encode_labels(y):
         lo, hi = int(yi.min()), int(yi.max())
         span = hi - lo + 1
         if span <= min(_DENSE_CODE_RANGE, 2 * y.size):
-            offset = yi - lo  # a new int64 array: the codes never alias y
-            if offset.dtype != np.int64:
-                offset = offset.astype(np.int64)
+            # In int64 before the subtraction: in a narrow dtype (int8 labels
+            # -100 and 100) the offsets overflow. A new array: codes never alias y.
+            offset = yi.astype(np.int64) - lo
             present = np.flatnonzero(np.bincount(offset, minlength=span))
             classes = (present + lo).astype(y.dtype)
             if len(present) == span:

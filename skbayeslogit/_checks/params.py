@@ -46,8 +46,15 @@ class Constraint:
         raise InvalidParameterError(message)
 
 
+#: The usable prior scales: the prior precision 1 / s^2 and the evidence's
+#: log terms stay far inside float64 (1e-100 .. 1e100) and beside a Hessian
+#: of any size the magnitude check lets through; outside, 1 / s^2 overflows
+#: or underflows (1e-160 made the Hessian infinite, 1e300 overflowed).
+SCALE_RANGE = (1e-50, 1e50)
+
+
 class Scale(Constraint):
-    """A prior scale: a positive finite float, None, or (``allow_auto``) "auto"."""
+    """A prior scale: a float in ``SCALE_RANGE``, None, or (``allow_auto``) "auto"."""
 
     def __init__(self, allow_auto=False):
         self.allow_auto = allow_auto
@@ -69,6 +76,11 @@ class Scale(Constraint):
         value = float(value)
         if not (np.isfinite(value) and value > 0):
             self.fail(f"{name} must be a positive finite float; got {value!r}.")
+        low, high = SCALE_RANGE
+        if not low <= value <= high:
+            self.fail(
+                f"{name} must be in [{low:g}, {high:g}] (or None for a flat prior); got {value!r}."
+            )
         return value
 
 
@@ -91,11 +103,17 @@ class PositiveInt(Constraint):
 
 
 class PositiveFloat(Constraint):
-    """A real number > 0."""
+    """A real number > 0 and (``maximum``) at most ``maximum``."""
+
+    def __init__(self, maximum=None, why=None):
+        self.maximum, self.why = maximum, why
 
     def check(self, name, value):
         if not _is_real(value) or not value > 0:
             self.fail(f"{name} must be a positive float; got {value!r}.")
+        if self.maximum is not None and not value <= self.maximum:
+            why = f" ({self.why})" if self.why else ""
+            self.fail(f"{name} must be in (0, {self.maximum:g}]{why}; got {value!r}.")
         return float(value)
 
 

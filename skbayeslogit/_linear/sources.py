@@ -426,3 +426,8 @@ def fit_data(X, y, sample_weight, *, fit_intercept, binary_only, validate):
     q = 1 if len(classes) == 2 else len(classes)
     y_fit = codes.astype(np.float64) if q == 1 else codes
     return FitData(LinearDesign(X, q, fit_intercept), y_fit, w, classes, X.shape[1], names)
+
+
+def dense_matrix(design):
+    """The in-memory feature matrix of a design, or None for a memmap or dask source."""
+    return design.X if isinstance(design, LinearDesign) else None
