@@ -21,7 +21,8 @@ from ._frame.command_inputs import (
     check_level,
     check_models,
     check_seed,
-    read_table,
+    column_names,
+    read_input,
     split_names,
 )
 from ._output.interrupts import (
@@ -61,6 +62,7 @@ def _parser():
     sco.add_argument("model_file", help="a model_<name>.skops file written by 'report --out'")
     sco.add_argument("file", help="CSV file of new rows with the model's feature columns")
     sco.add_argument("--level", type=float, default=0.9, help="credible level (default 0.9)")
+    _reading(sco)
     sco.add_argument(
         "--out", help="write the predictions to this CSV file, whole or not at all "
         "(default: print them)"
@@ -86,7 +88,8 @@ def _report_parser(sub):
     )
     rep.add_argument("file", nargs="?", help="CSV file, one row per case")
     rep.add_argument("--target", help="label column (default for the demo: storage_grade)")
-    rep.add_argument("--features", help="comma-separated feature columns (default: all numeric)")
+    _reading(rep)
+    _roles(rep)
     rep.add_argument(
         "--models",
         default="laplace,probit,tempered",
@@ -107,9 +110,47 @@ def _report_parser(sub):
         "other non-empty folder is refused. " + MODEL_FILES,
     )
     rep.add_argument(
-        "--dropna", action="store_true", help="leave out rows with missing values (say how many)"
+        "--missing",
+        choices=("error", "drop", "impute"),
+        help="missing cells in the target or a feature: stop with an error naming the "
+        "columns (default), leave those rows out (say how many), or impute the features "
+        "(median, most frequent level)",
     )
+    rep.add_argument("--dropna", action="store_true", help="the same as --missing drop")
     _common(rep)
+
+
+def _reading(p):
+    p.add_argument("--sep", help="the file's delimiter (default: sniffed among , ; tab |)")
+    p.add_argument(
+        "--decimal", choices=(".", ","),
+        help="the decimal mark (default: a comma only in a semicolon file whose numbers "
+        "are written with one)",
+    )  # fmt: skip
+
+
+def _roles(rep):
+    many = "; repeat the option for a name holding a comma"
+    rep.add_argument(
+        "--features", action="append",
+        help="feature columns, comma-separated (default: every column the role rules make "
+        "a feature: numeric and categorical, not IDs, constants or free text)" + many,
+    )  # fmt: skip
+    rep.add_argument(
+        "--id", action="append",
+        help="ID column(s): never features, kept in row-level outputs" + many,
+    )  # fmt: skip
+    rep.add_argument("--exclude", action="append", help="columns to leave out" + many)
+    rep.add_argument("--weight", help="column of frequency weights (3 counts as three rows)")
+    rep.add_argument(
+        "--positive",
+        help="positive class of a binary target (probabilities, intervals, confusion and "
+        "costs are about it; default: the second class in sorted order)",
+    )
+    rep.add_argument(
+        "--max-levels", type=int, default=20,
+        help="text columns with more distinct values are left out (default 20)",
+    )  # fmt: skip
 
 
 def _common(p):
@@ -118,7 +159,7 @@ def _common(p):
 
 
 def _report_input(args, say):
-    """The data, target, a description and the manifest's record of the input."""
+    """The data, target, a description, the manifest's record of the input, the reading."""
     from .datasets import make_orchard_lots
     from .report import frame_digest
 
@@ -130,12 +171,15 @@ def _report_input(args, say):
             f"(skbayeslogit.datasets, seed {args.seed}); no file given"
         )
         info = {"source": "demo", "rows": len(df), "sha256_of_csv": frame_digest(df)}
-        return df, args.target or "storage_grade", source, info
-    df, digest = read_table(args.file)
+        return df, args.target or "storage_grade", source, info, None
     if not args.target:
         raise CommandError("--target is required with a file: name the label column.")
+    read, digest = read_input(args.file, args.sep, args.decimal)
+    for line in read.summary_lines():
+        say(f"read: {line}")
+    df = read.frame
     info = {"source": os.path.abspath(args.file), "rows": len(df), "sha256": digest}
-    return df, args.target, f"file {args.file} ({len(df)} rows)", info
+    return df, args.target, f"file {args.file} ({len(df)} rows)", info, read
 
 
 def _report_options(args):
@@ -144,29 +188,49 @@ def _report_options(args):
     check_costs(args.cost_fp, args.cost_fn)
     check_folds(args.cv)
     check_seed(args.seed)
+    if args.max_levels < 2:
+        raise CommandError(f"--max-levels must be an integer >= 2; got {args.max_levels}")
+    if args.dropna and args.missing not in (None, "drop"):
+        raise CommandError(
+            f"--dropna means --missing drop; it contradicts --missing {args.missing}"
+        )
     return {
         "file": args.file,
         "target": args.target,
-        "features": split_names(args.features, "--features"),
         "models": check_models(split_names(args.models, "--models")),
         "level": args.level,
         "cost_fp": args.cost_fp,
         "cost_fn": args.cost_fn,
         "cv": args.cv,
         "seed": args.seed,
-        "dropna": args.dropna,
+        "missing": "drop" if args.dropna else (args.missing or "error"),
+        "max_levels": args.max_levels,
+        "positive": args.positive,
+        "weight": args.weight,
         "out": args.out,
     }
+
+
+def _column_options(args, df):
+    """``--features``, ``--id``, ``--exclude`` and ``--weight`` checked against the columns."""
+    columns = [str(c) for c in df.columns]
+    named = {
+        "features": column_names(args.features, "--features", columns),
+        "id": column_names(args.id, "--id", columns),
+        "exclude": column_names(args.exclude, "--exclude", columns),
+    }
+    if args.weight is not None:
+        check_columns(df, [args.weight], "weight")
+    return named
 
 
 def _cmd_report(args, say):
     from .report import build_report, render_text, write_outputs
 
     options = _report_options(args)
-    df, target, source, input_info = _report_input(args, say)
+    df, target, source, input_info, read = _report_input(args, say)
     check_columns(df, [target], "target")
-    if options["features"]:
-        check_columns(df, options["features"], "feature")
+    options.update(_column_options(args, df))
     # The output folder is checked, and its staging folder made, before the work.
     with _run_folder(args.out) or nullcontext() as folder:
         report = build_report(
@@ -180,8 +244,10 @@ def _cmd_report(args, say):
             cv=args.cv,
             random_state=args.seed,
             source=source,
-            dropna=args.dropna,
             progress=say,
+            reading=read,
+            **{k: options[k] for k in ("id", "exclude", "weight", "positive", "missing")},
+            max_levels=args.max_levels,
         )
         sys.stdout.write(render_text(report))
         if args.out:
@@ -209,7 +275,8 @@ def _cmd_score(args, say):
     check_level(args.level)
     if args.out:
         check_file_target(args.out)
-    df, _ = read_table(args.file)
+    read, _ = read_input(args.file, args.sep, args.decimal)
+    df = read.frame
     saved = load_model_file(args.model_file, trust_pickle=args.trust_pickle)
     model, features = saved["model"], saved["features"]
     missing = [c for c in features if c not in df.columns]
@@ -218,18 +285,21 @@ def _cmd_score(args, say):
             f"the new rows lack the model's feature column(s): {', '.join(missing)} "
             f"(the model uses {', '.join(features)})"
         )
-    from . import __version__, accessor  # noqa: F401
+    from . import __version__, accessor  # noqa: F401  (registers df.bayeslogit)
+    from ._frame.scoring import score_rows
 
     if saved["skbayeslogit_version"] != __version__:
         say(f"the model file was written by skbayeslogit {saved['skbayeslogit_version']}")
     say(f"scoring {len(df)} rows with the {saved['model_name']} model")
-    table = df.bayeslogit.predict_table(model, level=args.level)
-    out = table[[c for c in table.columns if c not in df.columns]]
+    out, messages = score_rows(df, model, args.level)
+    for message in messages:
+        say(message)
     if args.out:
         write_atomically(args.out, lambda tmp: out.to_csv(tmp, index=False))
         say(f"wrote {len(out)} predictions to {args.out}")
     else:
-        sys.stdout.write(out.to_string(index=False, float_format=lambda v: f"{v:.4f}") + "\n")
+        text = out.to_string(index=False, float_format=lambda v: f"{v:.4f}", na_rep="")
+        sys.stdout.write(text + "\n")
     return 0
 
 

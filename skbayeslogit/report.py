@@ -21,10 +21,11 @@ import pandas as pd
 from sklearn.utils.multiclass import type_of_target
 
 from . import accessor  # noqa: F401  (registers df.bayeslogit)
-from ._frame.columns import MissingValues, resolve_features
 from ._frame.fitting import coefficient_table
 from ._frame.registry import MODELS, available_models, binary_only, make_model, model_title
+from ._frame.report_columns import choose_columns, columns_text, evidence_by_model, used_rows
 from ._frame.report_files import write_files
+from ._frame.rows import missing_policy
 from ._output.run_folder import RunFolder, sha256_bytes
 
 CAUTION = (
@@ -57,6 +58,9 @@ class Report:
     cost: tuple | None = None
     ground_truth: dict | None = None
     frame: pd.DataFrame | None = None  # the rows used (after --dropna)
+    columns: pd.DataFrame | None = None  # columns.csv: every column's role and reason
+    column_evidence: dict = field(default_factory=dict)
+    reading: list = field(default_factory=list)  # how the file was read
 
 
 def _progress(callback, message):
@@ -80,6 +84,7 @@ def build_report(
     source="data",
     dropna=False,
     progress=None,
+    **columns,
 ):
     """Run the report's computations on ``df``.
 
@@ -90,7 +95,8 @@ def build_report(
     target : str
         The label column.
     features : list of str, optional
-        Default: every numeric column but the target.
+        Default: every column the role rules make a feature (numeric and
+        categorical; not IDs, constants or free text).
     models : sequence of {"laplace", "probit", "tempered"}
         The first available one is the primary model (thresholds, cases).
         "probit" is skipped for a multiclass target, with a note.
@@ -111,10 +117,16 @@ def build_report(
     source : str
         How to describe the data in the output.
     dropna : bool
-        Leave out rows with a missing value in the target or a used
-        feature (the report notes how many) instead of raising.
+        The same as ``missing="drop"``.
     progress : callable(str), optional
         Receives progress messages.
+    **columns
+        ``id``, ``exclude`` (lists), ``weight``, ``positive``,
+        ``max_levels``, ``missing`` ({"error", "drop", "impute"}: a missing
+        cell in the target or a feature raises, its row is left out and
+        noted, or features are imputed) as in ``df.bayeslogit.fit``;
+        ``reading``, the :class:`~skbayeslogit._frame.reading.ReadResult`
+        of the file.
 
     Returns
     -------
@@ -123,16 +135,22 @@ def build_report(
     if (cost_fp is None) != (cost_fn is None):
         raise ValueError("give both --cost-fp and --cost-fn, or neither.")
     notes = []
-    df, feats = _used_rows(df, target, features, dropna, notes)
+    reading = columns.pop("reading", None)
+    columns["missing"] = missing_policy(columns.get("missing"), dropna)
+    choice = choose_columns(df, target, {**columns, "features": features}, reading)
+    df = used_rows(df, target, choice.features, columns["missing"], notes)
+    feats, fit_options = choice.features, choice.fit_options
     n_classes = _count_classes(df, target)
     chosen = _chosen_models(models, n_classes, target, notes)
     primary = chosen[0]
     acc = df.bayeslogit
     _progress(progress, f"cross-validating {', '.join(chosen)} ({cv} folds)...")
     seeded = {name: make_model(name, **_seed_params(name, random_state)) for name in chosen}
-    comparison = acc.compare(target, feats, models=seeded, cv=cv, random_state=random_state)
+    comparison = acc.compare(
+        target, models=seeded, cv=cv, random_state=random_state, **fit_options
+    )
     fitted, coefficients, calibration, evidence = _fit_models(
-        df, target, feats, chosen, level, progress, random_state
+        df, target, fit_options, chosen, level, progress, random_state
     )
     primary_model = fitted[primary]
     robust = "tempered" if "tempered" in fitted else primary
@@ -158,41 +176,16 @@ def build_report(
         confusion=acc.confusion(target, primary_model),
         doubtful=doubtful,
         threshold=threshold,
-        predictions=_predictions(df, primary_model, target, feats, n_cases, level),
+        predictions=_predictions(df, primary_model, target, choice.ids, n_cases, level),
         primary=primary,
-        notes=notes,
+        notes=choice.statements + notes,
         cost=None if cost_fp is None else (float(cost_fp), float(cost_fn)),
         ground_truth=_ground_truth(df, doubtful),
         frame=df,
+        columns=choice.table,
+        column_evidence=evidence_by_model(fitted),
+        reading=[] if reading is None else reading.summary_lines(),
     )
-
-
-def _used_rows(df, target, features, dropna, notes):
-    """The rows the report uses and the feature names; missing values raise or are noted."""
-    feats = resolve_features(df, target, features)
-    used = [*feats, target]
-    missing = MissingValues.of(df, used)
-    if missing.n_rows:
-        if not dropna:
-            raise ValueError(
-                f"{missing.n_rows} of {len(df)} rows have missing values, by column: "
-                f"{missing.listing('{column} ({count})')}. Drop or impute them, or pass "
-                "--dropna to leave those rows out."
-            )
-        empty = [c for c, k in missing.per_column.items() if k == len(df)]
-        if empty:
-            raise ValueError(
-                f"column(s) {', '.join(map(repr, empty))} hold no values at all, so --dropna "
-                "would leave no rows; leave them out of --features or fill them."
-            )
-        df = df.dropna(subset=used)
-        if len(df) == 0:
-            raise ValueError(
-                f"every one of the {missing.n_total} rows has a missing value (by column: "
-                f"{missing.listing('{column} ({count})')}), so --dropna leaves no rows."
-            )
-        notes.append(f"{missing.n_rows} row(s) with missing values were left out (--dropna).")
-    return df, feats
 
 
 def _count_classes(df, target):
@@ -240,7 +233,7 @@ def _seed_params(name, random_state):
     return {"random_state": random_state} if takes_seed else {}
 
 
-def _fit_models(df, target, feats, chosen, level, progress, random_state):
+def _fit_models(df, target, fit_options, chosen, level, progress, random_state):
     """Each model fitted on all rows: models, coefficients, calibration, evidence."""
     acc = df.bayeslogit
     fitted, coefficients, calibration = {}, {}, {}
@@ -248,7 +241,7 @@ def _fit_models(df, target, feats, chosen, level, progress, random_state):
     for name in chosen:
         _progress(progress, f"fitting {name} on all {len(df)} rows...")
         started = time.perf_counter()
-        model = acc.fit(target, feats, model=name, **_seed_params(name, random_state))
+        model = acc.fit(target, model=name, **fit_options, **_seed_params(name, random_state))
         fitted[name] = model
         coefficients[name] = coefficient_table(model, level)
         calibration[name] = acc.calibration(target, model)
@@ -264,11 +257,11 @@ def _fit_models(df, target, feats, chosen, level, progress, random_state):
     return fitted, coefficients, calibration, pd.DataFrame(evidence_rows).set_index("model")
 
 
-def _predictions(df, model, target, feats, n_cases, level):
-    """Predictive probabilities with bounds for the first rows, with an id column."""
+def _predictions(df, model, target, ids, n_cases, level):
+    """Predictive probabilities with bounds for the first rows, with the ID columns."""
     cases = df.head(n_cases)
     predictions = cases.bayeslogit.predict_table(model, level=level)
-    id_cols = [c for c in cases.columns if c not in feats and c != target][:1]
+    id_cols = list(ids)
     return predictions[
         id_cols + [target] + [c for c in predictions.columns if c not in df.columns]
     ]
@@ -312,7 +305,11 @@ def render_text(report):
         f"{len(report.features)} features: {', '.join(report.features)}",
         CAUTION,
     ]
+    lines += [f"read: {line}" for line in report.reading]
     lines += [f"note: {note}" for note in report.notes]
+    if report.columns is not None:
+        lines.append(_section("Columns: the role of each, and why a column was left out"))
+        lines += columns_text(report.columns)
     lines.append(_section("Model comparison (cross-validated, held-out folds)"))
     cols = [
         c for c in ("accuracy", "log_loss", "brier", "ece", "fit_time") if c in report.comparison

@@ -135,7 +135,12 @@ class StandardizedClassifier(ClassifierMixin, BaseEstimator):
         # column scaled by 1e200 overflows to inf and the column became zeros.
         check_magnitude(X)
         fit_intercept = getattr(self.estimator, "fit_intercept", True)
-        mean, sd = column_moments(X)
+        # Frequency weights: the centre and spread of the rows as repeated,
+        # so a weight of k standardises exactly as k copies of the row would.
+        w = None if sample_weight is None else np.asarray(sample_weight, dtype=np.float64)
+        if w is not None and w.shape != (X.shape[0],):
+            raise ValueError(f"sample_weight has shape {w.shape}; expected ({X.shape[0]},).")
+        mean, sd = column_moments(X, w)
         self.center_ = mean if fit_intercept else np.zeros(X.shape[1])
         # A constant column keeps scale 1: dividing by zero helps no one, and
         # the wrapped estimator reports the dependence on the intercept.

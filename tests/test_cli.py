@@ -49,7 +49,7 @@ def test_demo_files_match_the_estimator(demo_run):
 
     lots = make_orchard_lots(400, random_state=0)
     saved = load_model_file(demo_run / "model_laplace.skops")
-    # The report fits the numeric columns it names (issue 18 rewires it).
+    # The report fits the columns its roles made features (orchard one-hot encoded).
     model = lots.bayeslogit.fit("storage_grade", saved["features"], model="laplace")
     written = pd.read_csv(demo_run / "coefficients_laplace.csv", index_col=0)
     expected = model.coef_table(0.9)

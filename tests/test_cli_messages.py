@@ -40,7 +40,7 @@ REPORT_ERRORS = [
     ("data file is a folder", "folder", [], "is a folder, not a CSV file"),
     ("data file is a pipe", "fifo", [], "not a regular file"),
     ("all-missing column with --dropna", LOTS.assign(empty=np.nan),
-     ["--dropna", "--features", "firmness_n,empty"], r"'empty' hold no values at all"),
+     ["--dropna", "--features", "firmness_n,empty"], r"'empty' cannot be used: all values"),
     ("every row has a gap, --dropna", _gappy(), ["--dropna", "--features",
      "firmness_n,starch_index"], rf"every one of the {len(LOTS)} rows.*firmness_n \({HALF}\)"),
     ("negative seed", LOTS, ["--seed", "-1"], r"--seed must be an integer from 0 to 2\*\*32 - 1"),

@@ -80,15 +80,39 @@ def _save(tmp_path, name, target, used):
     return frame, model, path
 
 
+def _categorical_model(tmp_path):
+    """A model with a text column one-hot encoded and a numeric gap imputed."""
+    frame = LOTS.copy()
+    frame.loc[frame.index[:3], "firmness_n"] = np.nan
+    model = frame.bayeslogit.fit(
+        "storage_grade", [*FEATS, "orchard"], model="laplace", missing="impute"
+    )
+    path = tmp_path / "categorical.skops"
+    save_model_file(path, model, model_name="laplace", target="storage_grade",
+                    features=[*FEATS, "orchard"], classes=model.classes_)  # fmt: skip
+    return frame, model, path
+
+
 def test_our_files_hold_exactly_the_trusted_types(tmp_path):
     """Every model of the registry, binary and multiclass, fresh and after the
-    report has used it: skops finds exactly TRUSTED_TYPES beyond its defaults.
-    A new type in a model makes this fail rather than being trusted silently."""
+    report has used it, and a model with a categorical column and imputed
+    cells: skops finds exactly TRUSTED_TYPES beyond its defaults. A new type
+    in a model makes this fail rather than being trusted silently."""
     found = set()
     for name, target, used in CASES:
         *_, path = _save(tmp_path, name, target, used)
         found |= set(sio.get_untrusted_types(file=path))
+    *_, path = _categorical_model(tmp_path)
+    found |= set(sio.get_untrusted_types(file=path))
     assert sorted(found) == sorted(TRUSTED_TYPES)
+
+
+def test_categorical_model_round_trip(tmp_path):
+    """The encoding travels with the model: same probabilities, same names."""
+    frame, model, path = _categorical_model(tmp_path)
+    loaded = load_model_file(path)["model"]
+    assert any(name.startswith("orchard=") for name in loaded.feature_names_out_)
+    np.testing.assert_array_equal(loaded.predict_proba(frame), model.predict_proba(frame))
 
 
 @pytest.mark.parametrize(("name", "target", "used"), CASES)

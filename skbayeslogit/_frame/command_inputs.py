@@ -6,7 +6,6 @@ options are checked against each other and against the file's columns.
 """
 
 import hashlib
-import io
 import math
 from pathlib import Path
 
@@ -15,13 +14,19 @@ class CommandError(Exception):
     """A problem with the user's input, reported as one line."""
 
 
-def read_table(path):
-    """The CSV file at ``path`` as a DataFrame, and the SHA-256 of its bytes.
+def read_input(path, sep=None, decimal=None):
+    """The CSV file at ``path`` read by :func:`~skbayeslogit._frame.reading.read_table`.
 
-    The bytes are read once and parsed from memory, so the hash is the hash
-    of exactly what was parsed.
+    The file is checked first (a folder, a missing or empty file each get
+    one line), then read with the delimiter, decimal mark and missing-value
+    tokens sniffed unless ``sep`` / ``decimal`` are given.
+
+    Returns
+    -------
+    ReadResult, str
+        What was read and decided, and the SHA-256 of the file's bytes.
     """
-    import pandas as pd
+    from .reading import read_table
 
     path = Path(path)
     if path.is_dir():
@@ -36,14 +41,41 @@ def read_table(path):
         raise CommandError(f"cannot read {path}: {exc.strerror or exc}") from exc
     if not data.strip():
         raise CommandError(f"cannot read {path} as CSV: the file is empty")
-    try:
-        df = pd.read_csv(io.BytesIO(data))
-    except (pd.errors.ParserError, UnicodeDecodeError, pd.errors.EmptyDataError) as exc:
-        raise CommandError(f"cannot read {path} as CSV: {exc}") from exc
-    if len(df) == 0:
+    read = read_table(path, sep=sep, decimal=decimal)
+    if len(read.frame) == 0:
         # Otherwise every column reads as text and the error blames the dtypes.
         raise CommandError(f"{path} has a header but no data rows")
-    return df, hashlib.sha256(data).hexdigest()
+    return read, hashlib.sha256(data).hexdigest()
+
+
+def column_names(given, option, columns):
+    """Column names from a repeatable option; None when the option was not given.
+
+    Each occurrence that is exactly a column name is taken whole (so names
+    holding commas can be given one per occurrence); any other occurrence
+    is split on commas.
+    """
+    if given is None:
+        return None
+    names = []
+    for text in [given] if isinstance(given, str) else given:
+        names += [text] if text in columns else split_names(text, option)
+    repeated = sorted({n for n in names if names.count(n) > 1})
+    if repeated:
+        raise CommandError(f"{option} names {', '.join(repeated)} more than once")
+    check_columns_named(names, option, columns)
+    return names
+
+
+def check_columns_named(names, option, columns):
+    """Every name is one of ``columns``, or one line naming those that are not."""
+    missing = [c for c in names if c not in columns]
+    if missing:
+        what = option.lstrip("-").removesuffix("s")
+        raise CommandError(
+            f"{what} column(s) not in the file: {', '.join(missing)}; "
+            f"available: {', '.join(map(str, columns))}"
+        )
 
 
 def split_names(text, option):

@@ -45,8 +45,11 @@ def _png(fig):
 def _tables(report):
     """The report's tables by file name, in the order they are written."""
     tables = {"comparison": report.comparison, "evidence": report.evidence}
+    if report.columns is not None:
+        tables["columns"] = report.columns
     tables.update({f"coefficients_{n}": t for n, t in report.coefficients.items()})
     tables.update({f"calibration_{n}": t for n, t in report.calibration.items()})
+    tables.update({f"column_evidence_{n}": t for n, t in report.column_evidence.items()})
     tables.update(confusion=report.confusion, doubtful_labels=report.doubtful)
     if report.threshold is not None:
         tables["cost_threshold"] = report.threshold
@@ -72,7 +75,8 @@ def write_files(report, df, out_dir, caution):
 
     for name, frame in _tables(report).items():
         path = out / f"{name}.csv"
-        frame.to_csv(path)
+        # columns.csv is a plain table: its row numbers mean nothing.
+        frame.to_csv(path, index=name != "columns")
         written["csv"].append(path)
 
     for name, model in report.models.items():
@@ -132,9 +136,15 @@ def _html(report, images, caution):
         f"features {esc(', '.join(report.features))}.</p>",
         f"<p class='caution'>{esc(caution)}</p>",
     ]
+    parts += [f"<p>Read: {esc(line)}</p>" for line in report.reading]
     parts += [f"<p><em>Note: {esc(note)}</em></p>" for note in report.notes]
+    if report.columns is not None:
+        parts.append("<h2>Columns: the role of each, and why a column was left out</h2>")
+        parts.append(_table_html(report.columns.set_index("column")))
     _html_table(parts, "Model comparison (cross-validated)", report.comparison)
     _html_table(parts, "Prior scale and evidence", report.evidence)
+    for name, table in report.column_evidence.items():
+        _html_table(parts, f"{esc(model_title(name))}: evidence per column", table)
     for name, table in report.coefficients.items():
         _html_table(parts, f"{esc(model_title(name))}: coefficients ({pct})", table)
         _html_image(parts, images, f"coefficients_{name}")

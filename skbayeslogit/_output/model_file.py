@@ -21,7 +21,13 @@ SUFFIX = ".skops"
 #: model the registry knows and asserts that skops finds exactly these, so a
 #: new type fails a test instead of being trusted silently.
 TRUSTED_TYPES = (
+    # Built by a SimpleImputer (missing="impute"): a dtype, which runs no code.
+    "numpy.dtype",
     "skbayeslogit._fit.posterior.GaussianPosterior",
+    "skbayeslogit._frame.levels.CategoricalEncoder",
+    "skbayeslogit._frame.levels.LevelCodes",
+    # The one-hot encoder's name function (a reference to our own function).
+    "skbayeslogit._frame.levels._position_name",
     "skbayeslogit._frame.model.FrameModel",
     "skbayeslogit.labelflip.LabelFlipLogisticClassifier",
     "skbayeslogit.laplace.LaplaceLogisticClassifier",
