@@ -17,6 +17,7 @@ import warnings
 import numpy as np
 import pandas as pd
 import pytest
+from cli_checks import one_error_line
 from scipy.special import expit
 from scipy.stats import norm
 from sklearn.exceptions import DataConversionWarning
@@ -542,13 +543,7 @@ def test_accessor_relabelled_and_padded_frames_give_the_same_probabilities(name)
 # ---------------------------------------------------------------------- CLI
 
 
-def _cli_error(capsys, args):
-    code = main(args)
-    err = capsys.readouterr().err
-    lines = [ln for ln in err.strip().splitlines() if not ln.startswith("[skbayeslogit]")]
-    assert code == 2, err
-    assert len(lines) == 1 and lines[0].startswith("skbayeslogit: error:"), err
-    return lines[0]
+_cli_error = one_error_line
 
 
 CLI_ERRORS = [

@@ -8,9 +8,9 @@ import warnings
 import numpy as np
 import pandas as pd
 import pytest
+from cli_checks import one_error_line
 
 import skbayeslogit.report
-from skbayeslogit.cli import main
 from skbayeslogit.datasets import make_orchard_lots
 from skbayeslogit.report import build_report
 
@@ -67,13 +67,7 @@ BEFORE_WORK = {c[0] for c in REPORT_ERRORS} - {
 }
 
 
-def _one_line(capsys, args):
-    code = main(args)
-    err = capsys.readouterr().err
-    lines = [ln for ln in err.strip().splitlines() if not ln.startswith("[skbayeslogit]")]
-    assert code == 2, err
-    assert len(lines) == 1 and lines[0].startswith("skbayeslogit: error:"), err
-    return lines[0]
+_one_line = one_error_line
 
 
 def _data_path(tmp_path, data):
