@@ -100,6 +100,11 @@ def _report_parser(sub):
     rep.add_argument("--cost-fn", type=float, help="cost of a false negative")
     rep.add_argument("--cv", type=int, default=5, help="cross-validation folds (default 5)")
     rep.add_argument(
+        "--top", type=int, default=20,
+        help="how many doubtful labels the text and the page show (default 20; the "
+        "doubtful table in --out holds them all)",
+    )  # fmt: skip
+    rep.add_argument(
         "--seed", type=int, default=0,
         help="seed of every random draw: the folds, the posterior draws and the demo",
     )  # fmt: skip
@@ -188,6 +193,8 @@ def _report_options(args):
     check_costs(args.cost_fp, args.cost_fn)
     check_folds(args.cv)
     check_seed(args.seed)
+    if args.top < 1:
+        raise CommandError(f"--top must be an integer >= 1; got {args.top}")
     if args.max_levels < 2:
         raise CommandError(f"--max-levels must be an integer >= 2; got {args.max_levels}")
     if args.dropna and args.missing not in (None, "drop"):
@@ -202,6 +209,7 @@ def _report_options(args):
         "cost_fp": args.cost_fp,
         "cost_fn": args.cost_fn,
         "cv": args.cv,
+        "top": args.top,
         "seed": args.seed,
         "missing": "drop" if args.dropna else (args.missing or "error"),
         "max_levels": args.max_levels,
@@ -242,6 +250,7 @@ def _cmd_report(args, say):
             cost_fp=args.cost_fp,
             cost_fn=args.cost_fn,
             cv=args.cv,
+            top=args.top,
             random_state=args.seed,
             source=source,
             progress=say,

@@ -5,15 +5,15 @@ practitioner hands over: a cross-validated comparison of the models, the
 coefficient tables with credible intervals (features standardised, so that
 one prior scale fits all; both scales reported), the prior scale chosen by
 the Laplace evidence, the rows with doubtful labels, the calibration, the
-cost-minimising threshold, and predictive probabilities with intervals for a
-few cases. :func:`render_text` prints it; :func:`write_outputs` writes CSV
-tables, PNG figures, the fitted models and one self-contained HTML page.
+cost-minimising threshold, and predictive probabilities with intervals for
+every row; first of all, a summary of the findings in plain sentences.
+:func:`render_text` prints it; :func:`write_outputs` writes CSV tables, PNG
+figures, the fitted models and one self-contained HTML page.
 
 Everything it reports is a statistical screening aid. Where a decision
 affects people, the report says so, and it does not replace domain review.
 """
 
-import time
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -21,11 +21,26 @@ import pandas as pd
 from sklearn.utils.multiclass import type_of_target
 
 from . import accessor  # noqa: F401  (registers df.bayeslogit)
-from ._frame.fitting import coefficient_table
-from ._frame.registry import MODELS, available_models, binary_only, make_model, model_title
-from ._frame.report_columns import choose_columns, columns_text, evidence_by_model, used_rows
+from ._frame.arguments import check_positive_int
+from ._frame.file_lines import row_lines
+from ._frame.orientation import positive_index
+from ._frame.predictions import every_row_table
+from ._frame.registry import MODELS, available_models, binary_only, make_model
+from ._frame.report_columns import choose_columns, evidence_by_model, used_rows
 from ._frame.report_files import write_files
+from ._frame.report_steps import (
+    checked_approximation,
+    confusion_tables,
+    doubtful_rows,
+    fit_models,
+    ground_truth,
+    held_out_comparison,
+    probabilities,
+    separated_classes,
+)
+from ._frame.report_text import report_text
 from ._frame.rows import missing_policy
+from ._frame.summary import findings
 from ._output.run_folder import RunFolder, sha256_bytes
 
 CAUTION = (
@@ -37,7 +52,64 @@ CAUTION = (
 
 @dataclass
 class Report:
-    """Everything ``build_report`` computed; tables are pandas DataFrames."""
+    """Everything ``build_report`` computed; tables are pandas DataFrames.
+
+    The row-level tables hold every row (the files hold them whole); the
+    terminal text and the page show the first ones.
+
+    Attributes
+    ----------
+    summary : list of str
+        The findings in plain sentences, the first section of the text and
+        the page: which columns matter (strongest evidence first, with
+        direction), how sure, which model did best held out and by how
+        much, the calibration verdict, how many rows to re-check and why,
+        and warnings (separated classes, a prior scale at the edge of its
+        search, the approximation check).
+    confusion : pandas.DataFrame
+        Binary: the calls at threshold 0.5 for the positive class (one row:
+        counts tp, fp, fn, tn and rates). Multiclass: a K x K table, index
+        ``recorded`` (the recorded label), columns ``predicted`` (the most
+        probable class), integer counts, or weight sums when a weight
+        column was given; ``attrs["accuracy"]`` is the share on the
+        diagonal (argmax accuracy).
+    class_rates : pandas.DataFrame or None
+        Multiclass: per class ``recall`` (sensitivity), ``precision``,
+        ``support`` (rows, or weight). None for a binary target.
+    doubtful : pandas.DataFrame
+        The complete doubtful list, most doubtful first
+        (:mod:`~skbayeslogit._frame.doubtful` says which rows and why this
+        ranking): the ID columns, ``line``, the target column (the
+        recorded label), ``most_likely_label``, ``prob_recorded_label`` and
+        ``odds_against_label`` (the ranking score); no feature columns.
+        ``attrs["model"]`` names the model that scored it.
+    top : int
+        How many doubtful rows the text and the page show (``--top``).
+    predictions : pandas.DataFrame
+        Every used row: the ID columns, ``line``, the target, then for the
+        positive class (binary) or each class (multiclass) ``prob_<c>``,
+        ``prob_<c>_median``, ``prob_<c>_lower``, ``prob_<c>_upper``,
+        ``oof_prob_<c>``, and ``predicted_label``. ``prob_<c>`` is the
+        posterior predictive mean, the probability to act on; lower and
+        upper are equal-tailed posterior quantiles of that probability at
+        ``level``, and the median its 50% quantile, always inside them. The
+        mean of a skewed posterior (near 0 or 1) can fall outside the
+        central interval; the median cannot, which is why both are given.
+        ``oof_prob_<c>`` is the probability from the cross-validation fold
+        that held the row out. A model without a posterior (tempered) has
+        no median or bounds.
+    approximation : ApproximationCheck or None
+        ``check_approximation`` of the primary model, seeded with the run's
+        seed; None for a model without a Laplace posterior, or when the
+        check failed (a note says why).
+
+    Notes
+    -----
+    ``line`` is the line of the input file on which the row starts (the
+    header is line 1, so the first data row of a plain export is line 2);
+    for a DataFrame given without a file it is the row's 1-based position in
+    that frame. Rows left out (``--missing drop``) keep their own numbers.
+    """
 
     source: str
     target: str
@@ -57,10 +129,15 @@ class Report:
     notes: list = field(default_factory=list)
     cost: tuple | None = None
     ground_truth: dict | None = None
-    frame: pd.DataFrame | None = None  # the rows used (after --dropna)
+    frame: pd.DataFrame | None = None  # the rows used (after --missing drop)
     columns: pd.DataFrame | None = None  # columns.csv: every column's role and reason
     column_evidence: dict = field(default_factory=dict)
     reading: list = field(default_factory=list)  # how the file was read
+    summary: list = field(default_factory=list)
+    class_rates: pd.DataFrame | None = None
+    top: int = 20
+    approximation: object = None
+    n_cases: int = 5  # prediction rows shown in the text
 
 
 def _progress(callback, message):
@@ -80,7 +157,7 @@ def build_report(
     cv=5,
     random_state=0,
     n_cases=5,
-    top_doubtful=10,
+    top=20,
     source="data",
     dropna=False,
     progress=None,
@@ -107,13 +184,15 @@ def build_report(
     cv : int >= 2
         Cross-validation folds of the comparison.
     random_state : int
-        Seeds every random draw: the folds, and the ``random_state`` of each
+        Seeds every random draw: the folds, the ``random_state`` of each
         model that takes one (its posterior draws, hence the multiclass
-        credible bounds).
+        credible bounds), the approximation check and the calibration
+        check.
     n_cases : int
-        How many rows to show predictions for.
-    top_doubtful : int
-        How many doubtful labels to list.
+        How many prediction rows the text shows (the table holds all).
+    top : int >= 1
+        How many doubtful rows the text and the page show (the table holds
+        all).
     source : str
         How to describe the data in the output.
     dropna : bool
@@ -126,7 +205,7 @@ def build_report(
         cell in the target or a feature raises, its row is left out and
         noted, or features are imputed) as in ``df.bayeslogit.fit``;
         ``reading``, the :class:`~skbayeslogit._frame.reading.ReadResult`
-        of the file.
+        of the file (its line numbers go into the row tables).
 
     Returns
     -------
@@ -134,58 +213,103 @@ def build_report(
     """
     if (cost_fp is None) != (cost_fn is None):
         raise ValueError("give both --cost-fp and --cost-fn, or neither.")
+    top = check_positive_int("top", top)
     notes = []
     reading = columns.pop("reading", None)
+    lines, line_note = row_lines(df, reading)
+    notes += [line_note] if line_note else []
     columns["missing"] = missing_policy(columns.get("missing"), dropna)
     choice = choose_columns(df, target, {**columns, "features": features}, reading)
-    df = used_rows(df, target, choice.features, columns["missing"], notes)
+    df, lines = _used_rows_and_lines(df, lines, target, choice.features, columns["missing"], notes)
     feats, fit_options = choice.features, choice.fit_options
     n_classes = _count_classes(df, target)
     chosen = _chosen_models(models, n_classes, target, notes)
     primary = chosen[0]
-    acc = df.bayeslogit
     _progress(progress, f"cross-validating {', '.join(chosen)} ({cv} folds)...")
     seeded = {name: make_model(name, **_seed_params(name, random_state)) for name in chosen}
-    comparison = acc.compare(
-        target, models=seeded, cv=cv, random_state=random_state, **fit_options
-    )
-    fitted, coefficients, calibration, evidence = _fit_models(
-        df, target, fit_options, chosen, level, progress, random_state
-    )
-    primary_model = fitted[primary]
-    robust = "tempered" if "tempered" in fitted else primary
-    _progress(progress, f"ranking doubtful labels with the {robust} model...")
-    doubtful = acc.doubtful_labels(target, fitted[robust], top=top_doubtful)
-    threshold = None
+    comparison, held_out = held_out_comparison(df, target, seeded, cv, random_state, fit_options)
+    fits = fit_models(
+        df, target, fit_options, chosen, level,
+        lambda name: _seed_params(name, random_state), progress,
+    )  # fmt: skip
+    primary_model = fits.models[primary]
+    held = held_out.get(primary)
+    rows = _row_tables(df, target, fits, primary, choice, lines, level, top, held)
+    rows["approximation"] = _checked(df, target, fits, primary, choice, random_state, notes)
     if cost_fp is not None:
         if n_classes == 2:
-            threshold = acc.cost_threshold(target, primary_model, cost_fp, cost_fn)
+            rows["threshold"] = df.bayeslogit.cost_threshold(
+                target, primary_model, cost_fp, cost_fn
+            )
         else:
             notes.append("cost thresholds apply to binary targets only; skipped.")
-    return Report(
+    report = Report(
         source=source,
         target=target,
         features=feats,
         classes=[str(c) for c in primary_model.classes_],
         level=level,
-        models=fitted,
+        models=fits.models,
         comparison=comparison,
-        coefficients=coefficients,
-        evidence=evidence,
-        calibration=calibration,
-        confusion=acc.confusion(target, primary_model),
-        doubtful=doubtful,
-        threshold=threshold,
-        predictions=_predictions(df, primary_model, target, choice.ids, n_cases, level),
+        coefficients=fits.coefficients,
+        evidence=fits.evidence,
+        calibration=fits.calibration,
+        top=top,
         primary=primary,
         notes=choice.statements + notes,
         cost=None if cost_fp is None else (float(cost_fp), float(cost_fn)),
-        ground_truth=_ground_truth(df, doubtful),
         frame=df,
         columns=choice.table,
-        column_evidence=evidence_by_model(fitted),
+        column_evidence=evidence_by_model(fits.models),
         reading=[] if reading is None else reading.summary_lines(),
+        n_cases=n_cases,
+        **rows,
     )
+    if held is not None:
+        _, classes, codes = probabilities(df, target, primary_model)
+        held = (held, codes, positive_index(primary_model, len(classes)))
+    report.summary = findings(report, fits, held, random_state)
+    return report
+
+
+def _checked(df, target, fits, primary, choice, seed, notes):
+    """The primary model's approximation check; records separated classes in ``fits``."""
+    model = fits.models[primary]
+    fits.separated_classes = separated_classes(df, target, model, choice.weight, notes)
+    return checked_approximation(df, target, model, seed, notes)
+
+
+def _row_tables(df, target, fits, primary, choice, lines, level, top, held_out):
+    """The doubtful list, the confusion and the predictions (see :class:`Report`)."""
+    model = fits.models[primary]
+    robust = "tempered" if "tempered" in fits.models else primary
+    doubtful = doubtful_rows(df, target, fits.models[robust], choice.ids, lines, choice.weight)
+    doubtful.attrs["model"] = robust
+    confusion, rates = confusion_tables(df, target, model, choice.weight)
+    return {
+        "doubtful": doubtful,
+        "ground_truth": ground_truth(df, doubtful, top),
+        "confusion": confusion,
+        "class_rates": rates,
+        "threshold": None,
+        "predictions": every_row_table(
+            df, model, level, target=target, ids=choice.ids, lines=lines, held_out=held_out
+        ),
+    }
+
+
+def _used_rows_and_lines(df, lines, target, feats, policy, notes):
+    """The rows the report uses (see ``used_rows``) and their line numbers."""
+    # The line numbers ride along as a column, so that whatever rows are left
+    # out, each kept row keeps its own number (the index may repeat values).
+    key = "\x00line"
+    while key in df.columns:
+        key += "\x00"
+    used = used_rows(df.assign(**{key: lines.to_numpy()}), target, feats, policy, notes)
+    kept = used[key].to_numpy()
+    used = used.drop(columns=key)
+    used.attrs = df.attrs
+    return used, kept
 
 
 def _count_classes(df, target):
@@ -233,153 +357,9 @@ def _seed_params(name, random_state):
     return {"random_state": random_state} if takes_seed else {}
 
 
-def _fit_models(df, target, fit_options, chosen, level, progress, random_state):
-    """Each model fitted on all rows: models, coefficients, calibration, evidence."""
-    acc = df.bayeslogit
-    fitted, coefficients, calibration = {}, {}, {}
-    evidence_rows = []
-    for name in chosen:
-        _progress(progress, f"fitting {name} on all {len(df)} rows...")
-        started = time.perf_counter()
-        model = acc.fit(target, model=name, **fit_options, **_seed_params(name, random_state))
-        fitted[name] = model
-        coefficients[name] = coefficient_table(model, level)
-        calibration[name] = acc.calibration(target, model)
-        inner = getattr(model, "estimator_", model)
-        evidence_rows.append(
-            {
-                "model": name,
-                "prior_scale": getattr(inner, "prior_scale_", getattr(inner, "prior_scale", None)),
-                "log_evidence": getattr(inner, "log_evidence_", None),
-                "fit_seconds": time.perf_counter() - started,
-            }
-        )
-    return fitted, coefficients, calibration, pd.DataFrame(evidence_rows).set_index("model")
-
-
-def _predictions(df, model, target, ids, n_cases, level):
-    """Predictive probabilities with bounds for the first rows, with the ID columns."""
-    cases = df.head(n_cases)
-    predictions = cases.bayeslogit.predict_table(model, level=level)
-    id_cols = list(ids)
-    return predictions[
-        id_cols + [target] + [c for c in predictions.columns if c not in df.columns]
-    ]
-
-
-def _ground_truth(df, doubtful):
-    """For the demo data: how many listed rows were deliberately mislabelled."""
-    if not (df.attrs.get("scenario") and "corrupted" in df.attrs):
-        return None
-    flipped = set(df.attrs["corrupted"]["lot_id"])
-    id_col = df.attrs.get("id_column", "lot_id")
-    hits = int(doubtful[id_col].isin(flipped).sum()) if id_col in doubtful else None
-    return {"flipped": len(flipped), "doubtful_hits": hits, "listed": len(doubtful)}
-
-
-# -- text ---------------------------------------------------------------------
-
-
-def _fmt(frame, digits=3):
-    return frame.to_string(float_format=lambda v: f"{v:.{digits}f}", na_rep="-")
-
-
-def _section(title):
-    return f"\n{title}\n{'-' * len(title)}"
-
-
-def _coef_columns(table, level):
-    pct = f"{round(level * 100):d}%"
-    keep = [c for c in ("estimate", "sd", "lower", "upper", "sign_prob") if c in table.columns]
-    out = table[keep].copy()
-    if "estimate_original" in table.columns:
-        out["estimate_per_unit"] = table["estimate_original"]
-    return out.rename(columns={"lower": f"lower_{pct}", "upper": f"upper_{pct}"})
-
-
 def render_text(report):
-    """The concise, aligned terminal summary of a :class:`Report`."""
-    lines = [
-        f"skbayeslogit report: {report.source}",
-        f"target {report.target!r} (classes: {', '.join(report.classes)}); "
-        f"{len(report.features)} features: {', '.join(report.features)}",
-        CAUTION,
-    ]
-    lines += [f"read: {line}" for line in report.reading]
-    lines += [f"note: {note}" for note in report.notes]
-    if report.columns is not None:
-        lines.append(_section("Columns: the role of each, and why a column was left out"))
-        lines += columns_text(report.columns)
-    lines.append(_section("Model comparison (cross-validated, held-out folds)"))
-    cols = [
-        c for c in ("accuracy", "log_loss", "brier", "ece", "fit_time") if c in report.comparison
-    ]
-    lines.append(_fmt(report.comparison[cols]))
-    lines += _coefficient_text(report)
-    lines += _evaluation_text(report)
-    lines += _doubtful_text(report)
-    pct = f"{round(report.level * 100):d}%"
-    lines.append(
-        _section(f"Predictive probabilities with {pct} credible bounds ({report.primary})")
-    )
-    lines.append(_fmt(report.predictions))
-    return "\n".join(lines) + "\n"
-
-
-def _coefficient_text(report):
-    pct = f"{round(report.level * 100):d}%"
-    lines = []
-    for name, table in report.coefficients.items():
-        heading = f"{model_title(name)}: coefficients, features standardised ({pct} intervals)"
-        lines.append(_section(heading))
-        ev = report.evidence.loc[name]
-        if ev["log_evidence"] is not None and pd.notna(ev["log_evidence"]):
-            lines.append(
-                f"prior scale chosen by the Laplace evidence: {ev['prior_scale']:.3g} "
-                f"(log evidence {ev['log_evidence']:.2f})"
-            )
-        lines.append(_fmt(_coef_columns(table, report.level)))
-        if "sign_prob" in table.columns:
-            lines.append(
-                "sign_prob: posterior probability that the coefficient has the sign of its "
-                "estimate (not a p-value); estimate_per_unit: per recorded unit."
-            )
-    return lines
-
-
-def _evaluation_text(report):
-    name = report.primary
-    cal = report.calibration[name]
-    lines = [
-        _section(f"Calibration of {name} on the fitted rows"),
-        f"expected calibration error {cal.attrs['ece']:.3f}, Brier {cal.attrs['brier']:.3f}, "
-        f"log loss {cal.attrs['log_loss']:.3f} (in-sample; see the comparison for held-out)",
-        _section(f"Confusion of {name} at threshold 0.5 (fitted rows)"),
-        _fmt(report.confusion),
-    ]
-    if report.threshold is not None:
-        c_fp, c_fn = report.cost
-        lines.append(
-            _section(
-                f"Threshold minimising cost (false positive {c_fp:g}, false negative {c_fn:g})"
-            )
-        )
-        lines.append(_fmt(report.threshold))
-    return lines
-
-
-def _doubtful_text(report):
-    lines = [_section("Rows whose labels look doubtful (a prompt to re-check, not a verdict)")]
-    shown = report.doubtful
-    keep = [c for c in shown.columns if c not in report.features and c != "orchard"]
-    lines.append(_fmt(shown[keep]))
-    if report.ground_truth is not None:
-        gt = report.ground_truth
-        lines.append(
-            f"demo ground truth: {gt['doubtful_hits']} of these {gt['listed']} rows were "
-            f"deliberately mislabelled ({gt['flipped']} of all rows were)."
-        )
-    return lines
+    """The concise, aligned terminal text of a :class:`Report`, the Summary first."""
+    return report_text(report, CAUTION)
 
 
 # -- files --------------------------------------------------------------------

@@ -72,8 +72,12 @@ def runnable_models(models, available, n_classes, standardize, stacklevel=2):
     return runnable
 
 
-def _fold_scores(est, df, y, folds, target):
-    """Held-out scores of ``est`` (a FrameModel: each fold encodes its own training rows)."""
+def _fold_scores(est, df, y, folds, target, held_out=None):
+    """Held-out scores of ``est`` (a FrameModel: each fold encodes its own training rows).
+
+    ``held_out``, an (n, K) array, receives each row's probabilities from
+    the fold that held it out.
+    """
     # One untimed fit first: the first fit of a model in a process pays
     # one-off numba compilation, which is not the model's speed.
     clone(est).fit(df.iloc[folds[0][0]])
@@ -84,6 +88,8 @@ def _fold_scores(est, df, y, folds, target):
         fold_model.fit(df.iloc[train])
         fit_time = time.perf_counter() - start
         P = np.asarray(fold_model.predict_proba(df.iloc[test]))
+        if held_out is not None:
+            held_out[test] = P
         _, codes = class_codes(fold_model, y[test], target)
         s = scores(P, codes, bins=10, positive=positive_index(fold_model, P.shape[1]))
         s["accuracy"] = float(np.mean(np.argmax(P, axis=1) == codes))
@@ -97,7 +103,7 @@ def _fold_scores(est, df, y, folds, target):
 
 
 def compare_models(df, target, models, cv, *, available, random_state, standardize,
-                   options):  # fmt: skip
+                   options, held_out=None):  # fmt: skip
     """One row of held-out scores per model (see the accessor's ``compare``).
 
     ``available`` lists the model names this installation can import;
@@ -105,6 +111,9 @@ def compare_models(df, target, models, cv, *, available, random_state, standardi
     missing, and ``dropna``). The column roles are decided once, on the
     whole frame, and every fold fits those same feature columns.
     Warnings point at the caller of the accessor method that calls this.
+    ``held_out``, a dict, receives for each model label its out-of-fold
+    probabilities: an (n_used, K) array in ``classes_`` order, one row per
+    row used, in frame order.
     """
     options = dict(options)
     options["missing"] = missing_policy(options.get("missing"), options.pop("dropna", False))
@@ -123,7 +132,10 @@ def compare_models(df, target, models, cv, *, available, random_state, standardi
     rows = {}
     for label, est in runnable:
         frame_model = FrameModel(est, target, standardize=standardize, **options)
-        rows[label] = _fold_scores(frame_model, used, y, folds, target)
+        probs = None
+        if held_out is not None:
+            probs = held_out[label] = np.zeros((len(used), n_classes))
+        rows[label] = _fold_scores(frame_model, used, y, folds, target, probs)
     out = pd.DataFrame.from_dict(rows, orient="index")
     out.index.name = "model"
     return record(out, keep, cv=cv, random_state=random_state, standardize=standardize)

@@ -194,3 +194,65 @@ def cost_threshold_table(df, target, model, c_fp, c_fn, dropna, positive=None):
     return record(
         out, keep, **attrs, positive_class=classes[index], negative_class=classes[1 - index]
     )
+
+
+def argmax_confusion(P, codes, classes, weights=None):
+    """K x K table of recorded labels against the most probable class.
+
+    Parameters
+    ----------
+    P : ndarray of shape (n, K)
+    codes : ndarray of shape (n,), int
+        Index of each recorded label in ``classes``.
+    classes : sequence of K labels
+    weights : ndarray of shape (n,), optional
+        Frequency weights: a cell sums the weights of its rows.
+
+    Returns
+    -------
+    pandas.DataFrame
+        Index ``recorded`` (the recorded label), columns ``predicted`` (the
+        class of largest probability; ties go to the first class, as
+        ``numpy.argmax``); integer counts, or weight sums when ``weights``
+        are given. ``attrs["accuracy"]``: the (weighted) share of rows on
+        the diagonal.
+    """
+    K = len(classes)
+    predicted = np.argmax(np.asarray(P), axis=1)
+    cells = np.bincount(codes * K + predicted, weights=weights, minlength=K * K).reshape(K, K)
+    if weights is None:
+        cells = cells.astype(np.int64)
+    labels = [str(c) for c in classes]
+    out = pd.DataFrame(
+        cells,
+        index=pd.Index(labels, name="recorded"),
+        columns=pd.Index(labels, name="predicted"),
+    )
+    total = cells.sum()
+    out.attrs["accuracy"] = float(np.trace(cells) / total) if total > 0 else float("nan")
+    return out
+
+
+def class_rates(table):
+    """Per-class rates of a K x K argmax table (see :func:`argmax_confusion`).
+
+    Returns
+    -------
+    pandas.DataFrame
+        One row per class: ``recall`` (the share of the class's rows
+        predicted as it; also called sensitivity), ``precision`` (the share
+        of rows predicted as the class that are recorded as it), ``support``
+        (its rows, or weight). A rate with an empty denominator is NaN.
+    """
+    cells = table.to_numpy(dtype=float)
+    diag = np.diag(cells)
+    support = cells.sum(axis=1)
+    called = cells.sum(axis=0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        recall = np.where(support > 0, diag / support, np.nan)
+        precision = np.where(called > 0, diag / called, np.nan)
+    out = pd.DataFrame(
+        {"recall": recall, "precision": precision, "support": table.sum(axis=1).to_numpy()},
+        index=pd.Index(table.index, name="class"),
+    )
+    return out

@@ -3,6 +3,7 @@
 import warnings
 
 import numpy as np
+import pandas as pd
 
 from .errors import UnseenLevelWarning
 from .fitting import class_codes, fitted_on_frame, model_rows, record, rows_with
@@ -89,3 +90,67 @@ def doubtful_rows(df, target, model, top, features, dropna, positive=None):
     )
     ids = list(getattr(model, "id_columns_", []))
     return record(out, keep, scorer=scorer, model=model_label(model), id_columns=ids)
+
+
+# An equal-tailed interval at a vanishing level closes on the median: the mean
+# of its bounds is the posterior median of the probability to within about
+# this level times the spread of its distribution.
+MEDIAN_LEVEL = 1e-9
+
+
+def every_row_table(rows, model, level, *, target, ids, lines, held_out=None):
+    """Every used row's probabilities: mean, median, credible bounds and out-of-fold.
+
+    Parameters
+    ----------
+    rows : pandas.DataFrame
+        The rows the model was fitted on.
+    model : fitted FrameModel
+    level : float in (0, 1)
+    target : str
+    ids : list of str
+    lines : array-like of shape (n,), int
+    held_out : ndarray of shape (n, K), optional
+        Out-of-fold probabilities from the cross-validation, in
+        ``classes_`` order.
+
+    Returns
+    -------
+    pandas.DataFrame
+        Indexed as ``rows``: the ID columns, ``line``, the target, then for
+        the positive class (binary) or every class (multiclass)
+        ``prob_<c>`` (the posterior predictive mean), ``prob_<c>_median``,
+        ``prob_<c>_lower``, ``prob_<c>_upper`` (equal-tailed posterior
+        quantiles at ``level``; median and bounds only for a model with a
+        posterior), ``oof_prob_<c>``, and ``predicted_label``.
+    """
+    classes = np.asarray(model.classes_)
+    P = np.asarray(model.predict_proba(rows))
+    index = positive_index(model, len(classes))
+    shown = [index] if index is not None else list(range(len(classes)))
+    out = pd.DataFrame({c: rows[c].to_numpy() for c in ids}, index=rows.index)
+    out["line"] = np.asarray(lines)
+    out[target] = rows[target].to_numpy()
+    bounds = median = None
+    if hasattr(model, "predict_interval"):
+        bounds = model.predict_interval(rows, level=level)
+        near = model.predict_interval(rows, level=MEDIAN_LEVEL)
+        median = (np.asarray(near[0]) + np.asarray(near[1])) / 2.0
+    for k in shown:
+        name = f"prob_{classes[k]}"
+        out[name] = P[:, k]
+        if bounds is not None:
+            out[f"{name}_median"] = _column(median, k)
+            out[f"{name}_lower"] = _column(bounds[0], k)
+            out[f"{name}_upper"] = _column(bounds[1], k)
+    if held_out is not None:
+        for k in shown:
+            out[f"oof_prob_{classes[k]}"] = held_out[:, k]
+    out["predicted_label"] = classes[np.argmax(P, axis=1)]
+    out.attrs["level"] = level
+    return out
+
+
+def _column(values, k):
+    values = np.asarray(values)
+    return values if values.ndim == 1 else values[:, k]
