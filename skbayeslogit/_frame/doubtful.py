@@ -1,24 +1,31 @@
 """Rows whose recorded label the model finds improbable, ranked fairly across classes.
 
+Both the choice of rows and their order use the model's probabilities *as
+if every class were equally common*: each class probability is divided by
+the class's share of the recorded labels and the row renormalised (the
+prior-shift adjustment of Saerens, Latinne & Decaestecker, "Adjusting the
+outputs of a classifier to new a priori probabilities", Neural Computation
+14, 2002, with equal new priors), giving ``q``.
+
 Which rows are listed
 ---------------------
-A row is on the list when the model finds its recorded label improbable:
-the recorded label is not the most probable class, or its probability is
-below ``cut`` (default :data:`PROBABILITY_CUT`). Rows the model agrees with
-are never listed, however low their probability is in absolute terms.
+A row is on the list when its recorded label is improbable by ``q``: it is
+not the most probable class, or its probability is below
+:data:`PROBABILITY_CUT`. Where the classes are about equally common this is
+the model's own verdict (its most probable class is another one). Where one
+class is common, a row of it can be listed while the model's most probable
+label is still its own: its measurements are more typical of another class,
+and only the common class's frequency keeps it ahead. The table shows the
+model's own most probable label and probability, so a reader sees both.
 
 How they are ranked
 -------------------
-By the odds against the recorded label *if every class were equally
-common*: the model's probabilities are divided by each class's share of the
-recorded labels and renormalised (the prior-shift adjustment of Saerens,
-Latinne & Decaestecker, "Adjusting the outputs of a classifier to new a
-priori probabilities", Neural Computation 14, 2002, with equal new
-priors), and the score is ``(1 - q_r) / q_r`` for the recorded class r. For
-two classes this is exactly the posterior odds against the recorded label
-divided by its prior odds, that is the likelihood ratio
-``P(x | other class) / P(x | recorded class)``: how much more typical the
-row's measurements are of the other class than of the one recorded.
+By the odds against the recorded label, ``(1 - q_r) / q_r`` for the
+recorded class r. For two classes this is exactly the posterior odds
+against the recorded label divided by its prior odds, that is the
+likelihood ratio ``P(x | other class) / P(x | recorded class)``: how much
+more typical the row's measurements are of the other class than of the one
+recorded.
 
 Why not the plain probability of the recorded label: a rare class gets a
 low probability on almost every one of its rows merely because it is rare,
@@ -40,8 +47,9 @@ class is rare and its rows are mostly genuine.
 import numpy as np
 import pandas as pd
 
-#: A recorded label with a probability below this is listed even when it is
-#: the most probable class (only possible with more than ten classes).
+#: A recorded label with an adjusted probability below this is listed even
+#: when it is the most probable class (only possible with more than ten
+#: classes).
 PROBABILITY_CUT = 0.1
 
 #: The score column of the doubtful list.
@@ -93,11 +101,26 @@ def balanced_odds_against(P, codes, shares):
         return np.where(own > 0, other / np.where(own > 0, own, 1.0), np.inf)
 
 
-def improbable(P, codes, cut=PROBABILITY_CUT):
-    """Whether the model finds each recorded label improbable (see the module docstring)."""
-    rows = np.arange(len(codes))
-    p_rec = P[rows, codes]
-    return (np.argmax(P, axis=1) != codes) | (p_rec < cut)
+def improbable(P, codes, shares, cut=PROBABILITY_CUT):
+    """Whether each recorded label is improbable with every class equally common.
+
+    Parameters
+    ----------
+    P : ndarray of shape (n, K)
+    codes : ndarray of shape (n,), int
+    shares : ndarray of shape (K,)
+    cut : float
+
+    Returns
+    -------
+    ndarray of shape (n,), bool
+        The recorded label is not the most probable class of the adjusted
+        probabilities ``q``, or its ``q`` is below ``cut``.
+    """
+    Q = np.asarray(P, dtype=np.float64) / shares
+    Q /= Q.sum(axis=1, keepdims=True)
+    q_rec = Q[np.arange(len(codes)), codes]
+    return (np.argmax(Q, axis=1) != codes) | (q_rec < cut)
 
 
 def doubtful_table(rows, P, codes, classes, target, *, lines, ids, weights=None):
@@ -131,7 +154,7 @@ def doubtful_table(rows, P, codes, classes, target, *, lines, ids, weights=None)
     P = np.asarray(P, dtype=np.float64)
     shares = class_shares(codes, len(classes), weights)
     score = balanced_odds_against(P, codes, shares)
-    listed = np.flatnonzero(improbable(P, codes))
+    listed = np.flatnonzero(improbable(P, codes, shares))
     order = listed[np.argsort(-score[listed], kind="stable")]
     out = pd.DataFrame({c: rows[c].to_numpy()[order] for c in ids}, index=rows.index[order])
     out["line"] = np.asarray(lines)[order]
