@@ -130,9 +130,11 @@ def _doubtful_text(report):
     model = doubtful.attrs.get("model", report.primary)
     lines = [
         _section("Rows whose labels look doubtful (a prompt to re-check, not a verdict)"),
-        f"{len(doubtful)} rows have a recorded label the {model} model finds improbable; "
-        f"the first {min(report.top, len(doubtful))} by odds against the recorded label "
-        "(every class counted as equally common):",
+        f"{len(doubtful)} rows have a recorded label the {model} model finds improbable "
+        "with every class counted as equally common; the first "
+        f"{min(report.top, len(doubtful))} by the odds against that label "
+        "(odds_against_label; prob_recorded_label and most_likely_label are the model's "
+        "own, class frequencies included):",
     ]
     if len(doubtful):
         lines.append(_plain(doubtful.head(report.top)))

@@ -214,10 +214,10 @@ def doubtful_sentence(doubtful, top, model_name, ground_truth=None):
     shown = min(n, top)
     text = (
         f"Rows to re-check: {n} of {doubtful.attrs.get('n_rows', n)} rows have a recorded "
-        f"label the {model_name} model finds improbable (not the most probable class); the "
-        f"{shown} most doubtful are listed, ranked by the odds against the recorded label "
-        "with every class counted as equally common, so a class is not listed merely for "
-        "being rare."
+        f"label the {model_name} model finds improbable (another class is more probable "
+        "once every class is counted as equally common, so a class is not listed merely "
+        f"for being rare); the {shown} with the highest odds against their label are listed "
+        "first. A prompt to re-check the records, not a verdict."
     )
     if ground_truth is not None and ground_truth.get("top_hits") is not None:
         text += (
