@@ -247,3 +247,23 @@ def test_line_numbers_are_the_files_lines(tmp_path):
     assert "lot_id" in ids  # the note column, one text per row, is taken as an ID too
     for frame in (table, report.doubtful):
         assert list(frame.columns[: len(ids) + 2]) == [*ids, "line", TARGET]
+
+
+def test_multiclass_summary_names_the_classes_a_column_favours():
+    """Reference: the three-class demo's true standardised coefficients
+    (juice is the reference class at 0): for the two largest effects the
+    summary names the class with the largest true coefficient over the one
+    with the smallest."""
+    from skbayeslogit._frame.fitting import coefficient_table
+    from skbayeslogit._frame.summary import column_sentences
+
+    df = make_orchard_lots(300, n_classes=3, random_state=0)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        model = df.bayeslogit.fit(TARGET, model="laplace", random_state=0)
+    first = column_sentences(model.column_evidence(), coefficient_table(model, 0.9), 0.9)[0]
+    truth = pd.DataFrame(df.attrs["coef_standardised"])  # features x classes
+    for column in ("firmness_n", "bruise_share_pct"):
+        words = first[first.index(column) :].split(")")[0]
+        most, least = truth.loc[column].idxmax(), truth.loc[column].idxmin()
+        assert f"favour {most} over {least}" in words, words

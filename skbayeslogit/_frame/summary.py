@@ -48,6 +48,20 @@ def _direction(coefficients, column, positive):
     return f"higher values make {positive} {way} likely"
 
 
+def _favoured(coefficients, column):
+    """Multiclass: the classes a higher value favours most and least, or None.
+
+    Only differences between classes' coefficients are identified, so the
+    statement compares the largest with the smallest.
+    """
+    if coefficients.index.nlevels != 2:
+        return None
+    slopes = coefficients["estimate"].xs(column, level=1, drop_level=True)
+    if len(slopes) < 2:
+        return None
+    return f"higher values favour {slopes.idxmax()} over {slopes.idxmin()}"
+
+
 def _spread(coefficients, column, level):
     """The coefficient's credible interval per standard deviation, or None."""
     if column not in coefficients.index or "lower" not in coefficients.columns:
@@ -57,6 +71,11 @@ def _spread(coefficients, column, level):
         f"{level_label(level)} interval {significant(row['lower'])} to "
         f"{significant(row['upper'])} per standard deviation"
     )
+
+
+def _numeric_in(coefficients, column):
+    """Whether ``column`` is one parameter per class of a multiclass table."""
+    return coefficients.index.nlevels == 2 and column in coefficients.index.get_level_values(1)
 
 
 def column_sentences(evidence, coefficients, level, positive=None):
@@ -94,8 +113,10 @@ def column_sentences(evidence, coefficients, level, positive=None):
                 _spread(coefficients, column, level),
             )
             details += [d for d in found if d is not None]
+        elif _numeric_in(coefficients, column):
+            details.append(_favoured(coefficients, column) or "effect differs by class")
         elif int(evidence.loc[column, "n_parameters"]) > 1:
-            details.append("effect differs by level or class")
+            details.append("effect differs by level")
         parts.append(f"{column} ({'; '.join(details)})")
     sentences = [
         "Columns that matter, strongest evidence first (Bayes factor against no effect): "
