@@ -6,14 +6,12 @@ holds.
 """
 
 import time
-import warnings
 from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
 
 from .._fit.identification import binary_separation
-from ..exceptions import SeparationWarning
 from .approximation import approximation_check
 from .arguments import check_positive_int
 from .comparison import compare_models
@@ -22,7 +20,6 @@ from .evaluation import argmax_confusion, class_rates
 from .fitting import class_codes, coefficient_table
 from .model import labels_of
 from .registry import available_models
-from .summary import EDGE_WARNING_START
 
 # The evidence search spans 1e-4 to 1e4 times 1 / (median column sd)
 # (``_fit.evidence.maximise_evidence``); the report's columns are standardised,
@@ -44,7 +41,6 @@ class Fits:
     coefficients: dict
     calibration: dict
     evidence: pd.DataFrame
-    separated: list = field(default_factory=list)  # models that warned of separation
     separated_classes: list = field(default_factory=list)  # classes a hyperplane separates
     at_edge: list = field(default_factory=list)  # model names
 
@@ -68,10 +64,13 @@ def held_out_comparison(df, target, seeded, cv, random_state, fit_options):
 
 
 def fit_models(df, target, fit_options, chosen, level, seed_params, progress):
-    """Each model fitted on all rows; its separation and prior-scale-edge warnings noted.
+    """Each model fitted on all rows; a prior scale at the edge of its search noted.
 
-    The warnings are recorded for the summary and then issued again, so a
-    caller still sees them.
+    The estimator warns of separation only without a prior, which the
+    report never fits (``separated_classes`` checks the data instead), and
+    of the edge only when its search stops exactly on it, so the edge is
+    read from the chosen scale (``SEARCH_TOP``). The fits' warnings reach
+    the caller untouched.
     """
     acc = df.bayeslogit
     fits = Fits({}, {}, {}, pd.DataFrame())
@@ -80,16 +79,8 @@ def fit_models(df, target, fit_options, chosen, level, seed_params, progress):
         if progress is not None:
             progress(f"fitting {name} on all {len(df)} rows...")
         started = time.perf_counter()
-        with warnings.catch_warnings(record=True) as caught:
-            warnings.simplefilter("always")
-            model = acc.fit(target, model=name, **fit_options, **seed_params(name))
+        model = acc.fit(target, model=name, **fit_options, **seed_params(name))
         seconds = time.perf_counter() - started
-        for w in caught:
-            if issubclass(w.category, SeparationWarning):
-                fits.separated.append(name)
-            elif str(w.message).startswith(EDGE_WARNING_START):
-                fits.at_edge.append(name)
-            warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
         scale = getattr(getattr(model, "estimator_", model), "prior_scale_", None)
         if scale is not None and scale * EDGE_FACTOR >= SEARCH_TOP:
             fits.at_edge.append(name)
@@ -105,8 +96,6 @@ def fit_models(df, target, fit_options, chosen, level, seed_params, progress):
                 "fit_seconds": seconds,
             }
         )
-    fits.separated = sorted(set(fits.separated), key=chosen.index)
-    fits.at_edge = sorted(set(fits.at_edge), key=chosen.index)
     fits.evidence = pd.DataFrame(evidence_rows).set_index("model")
     return fits
 

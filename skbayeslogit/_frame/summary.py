@@ -19,9 +19,6 @@ EFFECT_LOG10_BF = -0.5
 #: Label sets simulated from the probabilities for the calibration check.
 CALIBRATION_DRAWS = 200
 
-# Text the estimator's evidence search warns with when its largest scale wins.
-EDGE_WARNING_START = "the Laplace evidence is still rising"
-
 
 def strongest_columns(evidence):
     """Columns with (at least substantial) evidence of an effect, strongest first.
@@ -248,20 +245,18 @@ def doubtful_sentence(doubtful, top, model_name, ground_truth=None):
     return text
 
 
-def separation_sentence(classes, models, n_classes):
+def separation_sentence(classes, n_classes):
     """The warning for separated classes, or None.
 
     Parameters
     ----------
     classes : list of str
         Classes a hyperplane separates from the others (binary: one entry).
-    models : list of str
-        Models whose fit warned of separation.
     n_classes : int
     """
-    if not classes and not models:
+    if not classes:
         return None
-    if n_classes == 2 or not classes:
+    if n_classes == 2:
         which = "the two classes are"
     else:
         which = f"class(es) {', '.join(classes)} are"
@@ -319,7 +314,8 @@ def findings(report, fits, held_out, seed):
     report : Report
         Built but for its summary.
     fits : Fits
-        What the fits warned about (``separated``, ``at_edge``).
+        The classes a hyperplane separates (``separated_classes``) and the
+        models whose prior scale is at the edge of its search (``at_edge``).
     held_out : tuple or None
         The primary model's out-of-fold probabilities (n, K), the recorded
         labels' class indices (n,) and the positive class's index (binary;
@@ -361,9 +357,7 @@ def findings(report, fits, held_out, seed):
             report.ground_truth,
         )
     )  # fmt: skip
-    sentences.append(
-        separation_sentence(fits.separated_classes, fits.separated, len(report.classes))
-    )
+    sentences.append(separation_sentence(fits.separated_classes, len(report.classes)))
     sentences.append(edge_sentence(fits.at_edge))
     sentences.append(approximation_sentence(report.approximation))
     return [s for s in sentences if s]
