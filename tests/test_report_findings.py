@@ -98,6 +98,24 @@ def test_separated_classes_are_warned_about():
     assert any("separated" in s for s in report.summary)
 
 
+def test_labels_unrelated_to_the_columns_are_said_to_be():
+    """Reference: labels drawn independently of every column (a fair coin)."""
+    rng = np.random.default_rng(4)
+    frame = pd.DataFrame(rng.normal(size=(120, 3)), columns=["a", "b", "c"])
+    frame["y"] = rng.choice(["no", "yes"], 120)
+    summary = " ".join(_quiet(frame, "y", models=("laplace",), cv=2).summary)
+    assert "No column shows substantial evidence" in summary
+
+
+def test_a_prior_scale_at_the_top_of_its_search_is_warned_about(wine):
+    """Reference: scikit-learn's wine data are separable (each cultivar from
+    the others), so the evidence keeps rising with the prior scale."""
+    report = _quiet(wine, "cultivar", models=("laplace",), cv=2)
+    summary = " ".join(report.summary)
+    assert "largest prior scale searched" in summary and "separated" in summary
+    assert "Lindley" in summary  # column evidence is not read as 'no effect'
+
+
 def test_calibration_check_tells_calibrated_from_overconfident():
     """Reference: labels drawn from known probabilities. The true ones are
     calibrated; pushed towards 0 and 1 they are overconfident."""

@@ -23,9 +23,10 @@ from .registry import available_models
 
 # The evidence search spans 1e-4 to 1e4 times 1 / (median column sd)
 # (``_fit.evidence.maximise_evidence``); the report's columns are standardised,
-# so its top is 1e4. A chosen scale within a factor of two of it is at the
-# edge: its refinement can stop just below the top without a warning.
-SEARCH_TOP = 1e4
+# so it spans 1e-4 to 1e4. A chosen scale within a factor of two of an end is
+# at the edge: the refinement can stop just inside the top without a warning,
+# and the bottom is never warned about.
+SEARCH_BOTTOM, SEARCH_TOP = 1e-4, 1e4
 EDGE_FACTOR = 2.0
 
 # The separation check solves a linear program over every row; above this
@@ -42,7 +43,8 @@ class Fits:
     calibration: dict
     evidence: pd.DataFrame
     separated_classes: list = field(default_factory=list)  # classes a hyperplane separates
-    at_edge: list = field(default_factory=list)  # model names
+    at_edge: list = field(default_factory=list)  # models at the largest scale searched
+    at_floor: list = field(default_factory=list)  # models at the smallest
 
 
 def held_out_comparison(df, target, seeded, cv, random_state, fit_options):
@@ -84,6 +86,8 @@ def fit_models(df, target, fit_options, chosen, level, seed_params, progress):
         scale = getattr(getattr(model, "estimator_", model), "prior_scale_", None)
         if scale is not None and scale * EDGE_FACTOR >= SEARCH_TOP:
             fits.at_edge.append(name)
+        elif scale is not None and scale <= SEARCH_BOTTOM * EDGE_FACTOR:
+            fits.at_floor.append(name)
         fits.models[name] = model
         fits.coefficients[name] = coefficient_table(model, level)
         fits.calibration[name] = acc.calibration(target, model)

@@ -279,6 +279,17 @@ def edge_sentence(models):
     )
 
 
+def floor_sentence(models):
+    """The note for a prior scale at the bottom of its search, or None."""
+    if not models:
+        return None
+    return (
+        f"Warning: for {', '.join(models)}, the evidence prefers the smallest prior scale "
+        "searched: the data support no slope at all, every coefficient is pulled to zero, "
+        "and the labels look unrelated to these columns."
+    )
+
+
 def approximation_sentence(check):
     """One sentence on the Laplace approximation check (Pareto-smoothed importance sampling)."""
     if check is None:
@@ -315,7 +326,8 @@ def findings(report, fits, held_out, seed):
         Built but for its summary.
     fits : Fits
         The classes a hyperplane separates (``separated_classes``) and the
-        models whose prior scale is at the edge of its search (``at_edge``).
+        models whose prior scale is at the top or bottom of its search
+        (``at_edge``, ``at_floor``).
     held_out : tuple or None
         The primary model's out-of-fold probabilities (n, K), the recorded
         labels' class indices (n,) and the positive class's index (binary;
@@ -359,5 +371,6 @@ def findings(report, fits, held_out, seed):
     )  # fmt: skip
     sentences.append(separation_sentence(fits.separated_classes, len(report.classes)))
     sentences.append(edge_sentence(fits.at_edge))
+    sentences.append(floor_sentence(fits.at_floor))
     sentences.append(approximation_sentence(report.approximation))
     return [s for s in sentences if s]
