@@ -172,6 +172,10 @@ def test_multiclass_confusion_equals_scikit_learn(wine, weighted):
     np.testing.assert_allclose(report.class_rates["precision"], precision, rtol=1e-12)
     np.testing.assert_allclose(report.class_rates["support"], support, rtol=1e-12)
     assert not NAN.search(render_text(report))
+    for c in classes:  # medians of the posterior draws sit inside their bounds
+        p = report.predictions
+        assert (p[f"prob_{c}_lower"] <= p[f"prob_{c}_median"]).all()
+        assert (p[f"prob_{c}_median"] <= p[f"prob_{c}_upper"]).all()
 
 
 # ------------------------------------------------------------------ text
