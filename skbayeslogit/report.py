@@ -216,6 +216,10 @@ def build_report(
     top = check_positive_int("top", top)
     notes = []
     reading = columns.pop("reading", None)
+    # The demo's ground truth rides in attrs, which pandas deep-copies on
+    # every column read: the computations get a view without them.
+    scenario, df = df.attrs, df.copy(deep=False)
+    df.attrs = {}
     lines, line_note = row_lines(df, reading)
     notes += [line_note] if line_note else []
     columns["missing"] = missing_policy(columns.get("missing"), dropna)
@@ -235,6 +239,7 @@ def build_report(
     primary_model = fits.models[primary]
     held = held_out.get(primary)
     rows = _row_tables(df, target, fits, primary, choice, lines, level, top, held)
+    rows["ground_truth"] = ground_truth(scenario, rows["doubtful"], top)
     rows["approximation"] = _checked(df, target, fits, primary, choice, random_state, notes)
     if cost_fp is not None:
         if n_classes == 2:
@@ -288,7 +293,6 @@ def _row_tables(df, target, fits, primary, choice, lines, level, top, held_out):
     confusion, rates = confusion_tables(df, target, model, choice.weight)
     return {
         "doubtful": doubtful,
-        "ground_truth": ground_truth(df, doubtful, top),
         "confusion": confusion,
         "class_rates": rates,
         "threshold": None,
@@ -307,9 +311,7 @@ def _used_rows_and_lines(df, lines, target, feats, policy, notes):
         key += "\x00"
     used = used_rows(df.assign(**{key: lines.to_numpy()}), target, feats, policy, notes)
     kept = used[key].to_numpy()
-    used = used.drop(columns=key)
-    used.attrs = df.attrs
-    return used, kept
+    return used.drop(columns=key), kept
 
 
 def _count_classes(df, target):

@@ -171,12 +171,13 @@ def doubtful_rows(df, target, model, ids, lines, weight):
     )
 
 
-def ground_truth(df, doubtful, top):
-    """For the demo data: how many listed rows were deliberately mislabelled, or None."""
-    if not (df.attrs.get("scenario") and "corrupted" in df.attrs):
+def ground_truth(attrs, doubtful, top):
+    """For the demo data (its frame's ``attrs``): how many listed rows were
+    deliberately mislabelled, or None."""
+    if not (attrs.get("scenario") and "corrupted" in attrs):
         return None
-    flipped = set(df.attrs["corrupted"]["lot_id"])
-    id_col = df.attrs.get("id_column", "lot_id")
+    flipped = set(attrs["corrupted"]["lot_id"])
+    id_col = attrs.get("id_column", "lot_id")
     if id_col not in doubtful:
         return {"flipped": len(flipped), "top_hits": None, "listed_hits": None}
     ids = doubtful[id_col].tolist()
