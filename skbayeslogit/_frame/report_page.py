@@ -14,13 +14,14 @@ import jinja2
 import pandas as pd
 
 from .formatting import level_label, significant
-from .page_tables import folded_table, row_labels, table
+from .page_tables import SHOWN_COLUMNS, folded_table, row_labels, table
 from .registry import model_title
 
 # How many predictions the page lists (predictions.csv holds every row).
 SHOWN_PREDICTIONS = 10
 # How many doubtful rows the page lists when the report does not say.
 SHOWN_DOUBTFUL = 10
+_BOUNDS = ("_lower", "_upper")
 # A K x K confusion table this wide goes behind <details>.
 WIDEST_CONFUSION = 10
 
@@ -318,9 +319,14 @@ def _predictions(report):
     lines = []
     if len(frame) > len(listed):
         lines.append(f"The first {len(listed)} of {len(frame)} rows; all in predictions.csv.")
+    # The labels, then the probabilities; their bounds fold away first.
+    columns = [str(c) for c in listed.columns]
+    labels = [c for c in (report.target, "predicted_label") if c in columns]
+    probabilities = [c for c in columns if c.startswith("prob_") and not c.endswith(_BOUNDS)]
+    shown = labels + probabilities + [c for c in columns if c not in labels + probabilities]
     return _section(
         "predictions",
         f"Predictive probabilities with {level} credible bounds ({report.primary})",
         lines=lines,
-        tables=[table(listed, "predictions")],
+        tables=[table(listed, "predictions", shown=shown[:SHOWN_COLUMNS])],
     )
