@@ -161,3 +161,34 @@ def test_rows_are_labelled_by_id_not_by_position(browser, demo):
     )
     expected = report.doubtful["lot_id"].head(len(labels)).tolist()
     assert labels and labels == expected
+
+
+# -- what the page says, read from its text (no browser needed) ----------------
+
+
+def test_a_figure_that_cannot_be_drawn_is_named_with_the_reason(demo, tmp_path, monkeypatch):
+    """Without matplotlib the page still opens, and says which figures are
+    missing and why, where each would have been."""
+    import sys
+
+    from skbayeslogit._frame.report_files import write_files
+
+    report, _ = demo
+    monkeypatch.setitem(sys.modules, "matplotlib", None)
+    monkeypatch.setitem(sys.modules, "matplotlib.figure", None)
+    written = write_files(report, report.frame, tmp_path, caution="screening aid")
+    page = written["html"][0].read_text(encoding="utf-8")
+    assert written["png"] == [] and "<img" not in page
+    for name in ("coefficients_laplace", "coefficients_probit", "calibration_laplace", "boundary"):
+        assert f"Figure <code>{name}</code> could not be drawn: plotting needs matplotlib" in page
+
+
+def test_level_labels_are_exact(tmp_path):
+    """A 97.5% level reads "97.5%" on the page, never a rounded "98%"."""
+    df = make_orchard_lots(150, random_state=2)
+    report = build_report(df, "storage_grade", models=("laplace",), cv=2, level=0.975)
+    written = write_outputs(report, df, tmp_path / "report")
+    page = written["html"][0].read_text(encoding="utf-8")
+    assert "coefficients, features standardised (97.5% intervals)" in page
+    assert "Predictive probabilities with 97.5% credible bounds" in page
+    assert "lower 97.5%" in page and "98%" not in page
