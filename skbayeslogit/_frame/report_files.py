@@ -62,7 +62,7 @@ def _figures(report, df, calibration):
     else:
         model = report.models[primary]
         _drawn(figs, missing, "boundary", lambda: acc.plot_boundary(model, *axes))
-    return figs, missing  # fmt: skip
+    return figs, missing
 
 
 def _calibration_tables(report, df):
