@@ -7,16 +7,20 @@ touches global state or needs a GUI backend; ``fig.savefig("x.png")`` works
 anywhere, and notebooks display the figure when it is the cell's value.
 
 The look is meant to survive grey-scale print: series differ by marker,
-fill and line style, never by colour alone.
+fill and line style, never by colour alone (``_plots/style.py``); the
+reliability diagram lives in ``_plots/calibration.py``.
 
-matplotlib is an optional dependency (the ``plot`` extra); it is imported
-only when a figure is drawn.
+matplotlib is imported only when a figure is drawn, so that importing the
+package stays cheap.
 """
 
 import re
 
 import numpy as np
-from scipy.stats import norm
+
+from ._frame.formatting import level_label
+from ._plots.calibration import calibration_figure
+from ._plots.style import legend_key, require_matplotlib, series_style, style_axes
 
 __all__ = [
     "axis_label",
@@ -55,34 +59,6 @@ _UNIT_SUFFIXES = (
 )
 _UNIT_PREFIXES = (("days_", "days"), ("years_", "years"), ("hours_", "h"))
 
-# Marker, fill and line style per series: distinguishable without colour.
-_MARKERS = ("o", "s", "^", "D", "v", "P", "X")
-_LINESTYLES = ("-", "--", ":", "-.")
-_GREYS = ("0.1", "0.45", "0.65", "0.3", "0.55")
-
-
-def require_matplotlib():
-    """Import matplotlib's Figure class or say how to install it.
-
-    Returns
-    -------
-    type
-        :class:`matplotlib.figure.Figure`.
-
-    Raises
-    ------
-    ImportError
-        When matplotlib is not installed, naming the ``plot`` extra.
-    """
-    try:
-        from matplotlib.figure import Figure
-    except ImportError as exc:
-        raise ImportError(
-            "plotting needs matplotlib, which is not installed; install the plot "
-            'extra: pip install "skbayeslogit[plot]"'
-        ) from exc
-    return Figure
-
 
 def axis_label(name):
     """Readable axis label with units, from a snake_case column name.
@@ -120,25 +96,6 @@ def axis_label(name):
 
 def _words(name):
     return re.sub(r"_+", " ", name).strip()
-
-
-def _style_axes(ax):
-    # Light frame and grid: the data carry the ink.
-    for side in ("top", "right"):
-        ax.spines[side].set_visible(False)
-    ax.tick_params(labelsize=9)
-
-
-def _series_style(s):
-    """Marker, line style and grey of series ``s``."""
-    return _MARKERS[s % len(_MARKERS)], _LINESTYLES[s % len(_LINESTYLES)], _GREYS[s % len(_GREYS)]
-
-
-def _legend_key(label, **style):
-    """A legend entry that draws nothing on the axes."""
-    from matplotlib.lines import Line2D
-
-    return Line2D([], [], label=label, **style)
 
 
 def _draw_coefficient_series(ax, part, params, offset, style):
@@ -211,7 +168,7 @@ def coefficient_figure(table, *, level, xlabel, title=None):
         figsize=(6.4, 1.2 + 0.42 * n_rows * max(1.0, 0.6 * n_series)), layout="constrained"
     )
     ax = fig.add_subplot()
-    _style_axes(ax)
+    style_axes(ax)
     ax.axvline(0.0, color="0.5", lw=0.9, ls="--", zorder=1, gid="zero_line")
     # Series of one feature sit side by side within a band of 0.6 row heights.
     # The first series on top, as in the legend.
@@ -219,15 +176,16 @@ def coefficient_figure(table, *, level, xlabel, title=None):
     handles = []
     for s, (name, off) in enumerate(zip(series, offsets, strict=True)):
         part = table if name is None else table.xs(name, level=0)
-        marker, ls, grey = style = _series_style(s)
+        marker, ls, grey = style = series_style(s)
         _draw_coefficient_series(ax, part.reindex(params), params, off, style)
         if name is not None:
             handles.append(
-                _legend_key(str(name), color=grey, ls=ls, marker=marker, markeredgecolor="0.1")
+                legend_key(str(name), color=grey, ls=ls, marker=marker, markeredgecolor="0.1")
             )
     key = {"color": "0.3", "marker": "o", "ls": "none", "markeredgecolor": "0.1"}
-    handles.append(_legend_key(f"{level:.0%} interval excludes 0", **key))
-    handles.append(_legend_key(f"{level:.0%} interval includes 0", markerfacecolor="white", **key))
+    shown = level_label(level)
+    handles.append(legend_key(f"{shown} interval excludes 0", **key))
+    handles.append(legend_key(f"{shown} interval includes 0", markerfacecolor="white", **key))
     ax.set_yticks(np.arange(n_rows)[::-1], [axis_label(p) for p in params])
     ax.set_ylim(-0.7, n_rows - 0.3)
     ax.autoscale(enable=True, axis="x")
@@ -236,7 +194,7 @@ def coefficient_figure(table, *, level, xlabel, title=None):
     ax.set_axisbelow(True)
     ax.set_xlabel(xlabel)
     ax.set_title(
-        title or f"Coefficients: posterior mean and {level:.0%} credible interval",
+        title or f"Coefficients: posterior mean and {level_label(level)} credible interval",
         fontsize=10,
         loc="left",
     )
@@ -305,7 +263,7 @@ def boundary_figure(
 
     fig = Figure(figsize=(6.4, 6.0), layout="constrained")
     ax = fig.add_subplot()
-    _style_axes(ax)
+    style_axes(ax)
     x0, x1 = float(grid_x[0]), float(grid_x[-1])
     y0, y1 = float(grid_y[0]), float(grid_y[-1])
     handles = []
@@ -330,7 +288,7 @@ def boundary_figure(
                 facecolor="0.9",
                 edgecolor="0.45",
                 ls=":",
-                label=f"{level:.0%} credible interval of P contains 0.5",
+                label=f"{level_label(level)} credible interval of P contains 0.5",
             )
         )
     if draw_lines is not None and len(draw_lines):
@@ -343,12 +301,12 @@ def boundary_figure(
             line.set(color="0.35", lw=0.8, alpha=0.55, gid="posterior_draw", zorder=2)
             ax.add_line(line)
         handles.append(
-            _legend_key(
+            legend_key(
                 f"boundaries of {len(draw_lines)} posterior draws", color="0.35", lw=0.8, alpha=0.7
             )
         )
     ax.contour(grid_x, grid_y, grid_prob, levels=[0.5], colors=["0.0"], linewidths=2.2, zorder=4)
-    handles.append(_legend_key("P = 0.5 (predicted probability)", color="0.0", lw=2.2))
+    handles.append(legend_key("P = 0.5 (predicted probability)", color="0.0", lw=2.2))
     styles = (
         {"marker": "o", "facecolors": "white", "edgecolors": "0.15"},
         {"marker": "^", "facecolors": "0.25", "edgecolors": "0.05"},
@@ -359,7 +317,7 @@ def boundary_figure(
             x[mask], y[mask], s=22, linewidths=0.8, label=str(cls), zorder=3, gid="data", **style
         )
         handles.append(
-            _legend_key(
+            legend_key(
                 f"recorded {cls}",
                 ls="none",
                 marker=style["marker"],
@@ -376,124 +334,4 @@ def boundary_figure(
     ax.set_title(title if note is None else f"{title}\n{note}", fontsize=10, loc="left")
     # Below the axes, so that it never hides data.
     fig.legend(handles=handles, fontsize=8, frameon=False, loc="outside lower center", ncols=2)
-    return fig
-
-
-def _wilson(hits, n, level=0.95):
-    """Wilson score interval for a binomial proportion (NaN where n = 0)."""
-    z = norm.ppf(0.5 + level / 2.0)
-    n = np.asarray(n, dtype=float)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        p = hits / n
-        centre = (p + z**2 / (2 * n)) / (1 + z**2 / n)
-        half = z * np.sqrt(p * (1 - p) / n + z**2 / (4 * n**2)) / (1 + z**2 / n)
-    return centre - half, centre + half
-
-
-def calibration_figure(table, *, xlabel, scores=None, title=None):
-    """Reliability diagram over a histogram of the predicted probabilities.
-
-    Parameters
-    ----------
-    table : pandas.DataFrame
-        The accessor's reliability table: ``bin_lower``, ``bin_upper``,
-        ``count``, ``mean_predicted``, ``observed_frequency``, and for
-        several series a ``class`` column (one series per class).
-    xlabel : str
-    scores : dict, optional
-        Summary numbers printed in the corner, name -> float.
-    title : str, optional
-
-    Returns
-    -------
-    matplotlib.figure.Figure
-        Two Axes: the reliability curve(s) (Line2D with
-        ``gid="reliability"``; for a single series with 95 % Wilson intervals
-        for the observed frequency of each bin) above the bin counts.
-    """
-    Figure = require_matplotlib()
-
-    fig = Figure(figsize=(6.0, 7.0), layout="constrained")
-    ax, hist = fig.subplots(2, 1, sharex=True, height_ratios=(3, 1))
-    for a in (ax, hist):
-        _style_axes(a)
-    # Thin, light and solid: no series uses that style.
-    ax.plot([0, 1], [0, 1], color="0.7", ls="-", lw=0.9, label="perfect calibration")
-    groups = [(None, table)] if "class" not in table else list(table.groupby("class", sort=False))
-    n_groups = len(groups)
-    width = 1.0 / max(len(table) / n_groups, 1) / n_groups
-    for s, (name, part) in enumerate(groups):
-        marker, ls, grey = _series_style(s)
-        full = part[part["count"] > 0]
-        count = full["count"].to_numpy(dtype=float)
-        obs = full["observed_frequency"].to_numpy(dtype=float)
-        lo, hi = _wilson(obs * count, count)
-        pred = full["mean_predicted"].to_numpy(dtype=float)
-        if n_groups == 1:
-            # Several overlapping sets of bars would hide the curves.
-            ax.errorbar(
-                pred,
-                obs,
-                # Clipped at 0: rounding can put a Wilson bound a hair past p.
-                yerr=[np.maximum(obs - lo, 0.0), np.maximum(hi - obs, 0.0)],
-                fmt="none",
-                ecolor=grey,
-                elinewidth=0.9,
-                capsize=2.5,
-                alpha=0.8,
-            )
-        label = "observed frequency" if name is None else str(name)
-        ax.plot(
-            pred,
-            obs,
-            marker=marker,
-            ls=ls,
-            color=grey,
-            markeredgecolor="0.1",
-            markerfacecolor=grey if s % 2 == 0 else "white",
-            lw=1.4,
-            label=label,
-            gid="reliability",
-        )
-        left = part["bin_lower"].to_numpy(dtype=float) + s * width
-        hist.bar(
-            left,
-            part["count"].to_numpy(dtype=float),
-            width=width,
-            align="edge",
-            # Light fills: the histogram is context, the curve is the message.
-            color=("0.78", "white", "0.55", "white")[s % 4],
-            edgecolor="0.2",
-            lw=0.6,
-            hatch=None if s % 2 == 0 else "///",
-            label=label,
-        )
-    ax.set_xlim(0, 1)
-    ax.set_ylim(-0.02, 1.02)
-    ax.set_ylabel("observed frequency (share of rows in the bin)")
-    ax.grid(color="0.92", lw=0.8)
-    ax.set_axisbelow(True)
-    ax.legend(fontsize=8, frameon=False, loc="upper left")
-    if scores:
-        text = "\n".join(f"{k}: {v:.3f}" for k, v in scores.items())
-        ax.text(
-            0.98,
-            0.03,
-            text,
-            transform=ax.transAxes,
-            ha="right",
-            va="bottom",
-            fontsize=8,
-            family="monospace",
-            bbox={"facecolor": "white", "edgecolor": "0.8"},
-        )
-    hist.set_xlabel(xlabel)
-    hist.set_ylabel("rows")
-    if n_groups > 1:
-        hist.legend(fontsize=7, frameon=False, loc="upper right")
-    ax.set_title(
-        title or "Calibration: predicted probability vs observed frequency",
-        fontsize=10,
-        loc="left",
-    )
     return fig

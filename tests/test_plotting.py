@@ -11,6 +11,9 @@ from matplotlib.figure import Figure
 
 import skbayeslogit.accessor  # noqa: F401  (registers df.bayeslogit)
 from skbayeslogit import plotting
+from skbayeslogit._frame.evaluation import calibration_table
+from skbayeslogit._frame.figures import calibration_view
+from skbayeslogit._frame.formatting import significant
 from skbayeslogit.datasets import FEATURES, TARGET, make_orchard_lots
 from skbayeslogit.plotting import axis_label
 
@@ -191,7 +194,7 @@ def test_plot_calibration_binary(df2, m2, tmp_path):
     assert [p.get_height() for p in hist.patches] == list(table["count"])
     assert ax.get_ylabel().startswith("observed frequency")
     assert hist.get_xlabel() == "predicted probability of long_storage"
-    assert any(f"{table.attrs['ece']:.3f}" in t.get_text() for t in ax.texts)
+    assert any(significant(table.attrs["ece"]) in t.get_text() for t in ax.texts)
     _save(fig, tmp_path, "calibration_binary")
 
 
@@ -205,6 +208,96 @@ def test_plot_calibration_multiclass(df3, m3, tmp_path):
     assert len({c.get_linestyle() for c in curves}) == 3
     assert len(hist.patches) == 3 * 10
     _save(fig, tmp_path, "calibration_multiclass")
+
+
+def _in_bins(p, edges):
+    """Bin of each probability, bins closed on the right and the first on both sides."""
+    return np.clip(np.searchsorted(edges, p, side="left") - 1, 0, len(edges) - 2)
+
+
+def test_quantile_bins_are_numpy_quantiles(df2, m2):
+    """Equal-count edges are numpy's inverted-CDF quantiles of the predictions;
+    counts and means are recomputed here with boolean masks."""
+    table = calibration_table(df2, TARGET, m2, 8, False, binning="quantile")
+    p = m2.predict_proba(df2[list(FEATURES)])[:, 1]
+    hit = df2[TARGET].to_numpy() == "long_storage"
+    # Reference: numpy.quantile (inverted empirical CDF), repeated edges merged.
+    edges = np.unique(np.quantile(p, np.linspace(0, 1, 9), method="inverted_cdf"))
+    np.testing.assert_array_equal(
+        np.append(table["bin_lower"], table["bin_upper"].iloc[-1]), edges
+    )
+    ids = _in_bins(p, edges)
+    for k, row in table.iterrows():
+        mask = ids == k
+        assert row["count"] == mask.sum()
+        assert row["mean_predicted"] == pytest.approx(p[mask].mean(), rel=1e-12)
+        assert row["observed_frequency"] == pytest.approx(hit[mask].mean(), rel=1e-12)
+    # Equal count: 300 rows in 8 bins hold 37 or 38 each (no tied probabilities here).
+    assert set(table["count"]) <= {37, 38}
+    assert (table["binning"] == "quantile").all()
+
+
+def test_weighted_rows_count_by_their_weight(df2):
+    """A model fitted with a weight column: bins, ECE, Brier and log loss weigh
+    every row. References: np.average with the weights, numpy's weighted
+    inverted-CDF quantiles, scikit-learn's brier_score_loss and log_loss with
+    sample_weight."""
+    from sklearn.metrics import brier_score_loss, log_loss
+
+    frame = df2.assign(w=np.random.default_rng(3).integers(1, 5, len(df2)))
+    model = frame.bayeslogit.fit(TARGET, list(FEATURES), weight="w")
+    table = calibration_table(frame, TARGET, model, 6, False, binning="both")
+    P = model.predict_proba(frame[list(FEATURES)])
+    p, w = P[:, 1], frame["w"].to_numpy(dtype=float)
+    y = frame[TARGET].to_numpy()
+    hit = y == "long_storage"
+    for binning in ("uniform", "quantile"):
+        part = table[table["binning"] == binning].reset_index(drop=True)
+        if binning == "quantile":
+            q = np.quantile(p, np.linspace(0, 1, 7), weights=w, method="inverted_cdf")
+            edges = np.unique(q)
+        else:
+            edges = np.linspace(0, 1, 7)
+        np.testing.assert_allclose(part["bin_lower"], edges[:-1], rtol=0, atol=0)
+        ids = _in_bins(p, edges)
+        ece = 0.0
+        for k, row in part.iterrows():
+            mask = ids == k
+            assert row["weight"] == w[mask].sum()
+            if not mask.any():
+                continue
+            mean_p = np.average(p[mask], weights=w[mask])
+            observed = np.average(hit[mask], weights=w[mask])
+            assert row["mean_predicted"] == pytest.approx(mean_p, rel=1e-12)
+            assert row["observed_frequency"] == pytest.approx(observed, rel=1e-12)
+            ece += w[mask].sum() / w.sum() * abs(observed - mean_p)
+        assert table.attrs["ece_by_binning"][binning] == pytest.approx(ece, rel=1e-12)
+    assert table.attrs["brier"] == pytest.approx(
+        brier_score_loss(y, p, sample_weight=w, pos_label="long_storage"), rel=1e-12
+    )
+    assert table.attrs["log_loss"] == pytest.approx(
+        log_loss(y, P, sample_weight=w, labels=model.classes_), rel=1e-12
+    )
+    assert table.attrs["weight_total"] == w.sum()
+
+
+@pytest.mark.parametrize("frame", ["df2", "df3"])
+def test_plot_calibration_draws_both_binnings(frame, request, tmp_path):
+    df = request.getfixturevalue(frame)
+    model = request.getfixturevalue("m2" if frame == "df2" else "m3")
+    table = calibration_table(df, TARGET, model, 10, False, binning="both")
+    fig = plotting.calibration_figure(**calibration_view(table, TARGET))
+    assert len(fig.axes) == 4  # curves and counts, equal-width then equal-count
+    curve_axes = [a for a in fig.axes if _by_gid(a, "reliability")]
+    for ax, binning in zip(curve_axes, ("uniform", "quantile"), strict=True):
+        part = table[(table["binning"] == binning) & (table["count"] > 0)]
+        curves = _by_gid(ax, "reliability")
+        drawn_x = np.concatenate([c.get_xdata() for c in curves])
+        np.testing.assert_allclose(np.sort(drawn_x), np.sort(part["mean_predicted"]))
+    text = " ".join(t.get_text() for t in fig.axes[0].texts)
+    for binning, name in (("uniform", "equal-width"), ("quantile", "equal-count")):
+        assert f"ECE, {name}: {significant(table.attrs['ece_by_binning'][binning])}" in text
+    _save(fig, tmp_path, f"calibration_both_{frame}")
 
 
 # ---------------------------------------------------------- matplotlib

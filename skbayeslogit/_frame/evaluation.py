@@ -16,39 +16,74 @@ from .orientation import positive_index
 _CALLER = 3
 
 
-def reliability(prob, hit, bins):
-    """Uniform-bin reliability of one probability column.
+def quantile_edges(prob, bins, weights=None):
+    """Edges of equal-count bins: weighted quantiles of the probabilities.
 
-    Bins are ``[0, 1/bins], (1/bins, 2/bins], ...`` (the same rule as
-    scikit-learn's ``calibration_curve`` with ``strategy="uniform"``).
+    The quantile is the inverted empirical distribution function (numpy's
+    ``method="inverted_cdf"``, with ``weights`` as frequency weights), so an
+    integer weight equals repeating the row. Repeated edges (many equal
+    probabilities) are merged, so there may be fewer than ``bins`` bins.
+    """
+    order = np.argsort(prob, kind="stable")
+    sorted_p = prob[order]
+    w = np.ones(len(prob)) if weights is None else np.asarray(weights, dtype=float)[order]
+    cum = np.cumsum(w)
+    # k * total / bins, not (k / bins) * total: exact for integer totals.
+    targets = np.arange(bins + 1) * cum[-1] / bins
+    at = np.minimum(np.searchsorted(cum, targets, side="left"), len(prob) - 1)
+    edges = sorted_p[at]
+    edges[0] = sorted_p[np.argmax(w > 0)]
+    return np.unique(edges)
+
+
+def reliability(prob, hit, bins, binning="uniform", weights=None):
+    """Reliability of one probability column in equal-width or equal-count bins.
+
+    Equal-width bins are ``[0, 1/bins], (1/bins, 2/bins], ...`` (the same
+    rule as scikit-learn's ``calibration_curve`` with ``strategy="uniform"``);
+    equal-count bins have the edges of :func:`quantile_edges`, each bin
+    again closed on the right.
 
     Parameters
     ----------
     prob : ndarray of shape (n,), in [0, 1]
     hit : ndarray of shape (n,), bool (the event happened)
     bins : int
+    binning : {"uniform", "quantile"}
+    weights : ndarray of shape (n,), optional
+        Frequency weights (>= 0): a row of weight 3 counts as three rows in
+        the means, the ECE and the edges of equal-count bins.
 
     Returns
     -------
-    table : dict of ndarray of shape (bins,)
+    table : dict of ndarray of shape (number of bins,)
+        ``count`` is the number of rows in a bin; with weights, ``weight``
+        is their weight sum and the means are weighted.
     ece : float
-        sum over bins of count / n * |observed - mean predicted|.
+        sum over bins of weight / total weight * |observed - mean predicted|.
     """
-    edges = np.linspace(0.0, 1.0, bins + 1)
+    if binning == "quantile":
+        edges = quantile_edges(prob, bins, weights)
+    else:
+        edges = np.linspace(0.0, 1.0, bins + 1)
+    n_bins = len(edges) - 1
     ids = np.searchsorted(edges[1:-1], prob)
-    count = np.bincount(ids, minlength=bins)
-    sum_p = np.bincount(ids, weights=prob, minlength=bins)
-    sum_y = np.bincount(ids, weights=hit.astype(float), minlength=bins)
+    w = np.ones(len(prob)) if weights is None else np.asarray(weights, dtype=float)
+    count = np.bincount(ids, minlength=n_bins)
+    size = np.bincount(ids, weights=w, minlength=n_bins)
+    sum_p = np.bincount(ids, weights=w * prob, minlength=n_bins)
+    sum_y = np.bincount(ids, weights=w * hit, minlength=n_bins)
+    full = size > 0
     with np.errstate(divide="ignore", invalid="ignore"):
-        mean_p = np.where(count > 0, sum_p / count, np.nan)
-        obs = np.where(count > 0, sum_y / count, np.nan)
-    full = count > 0
-    ece = float(np.sum(count[full] * np.abs(obs[full] - mean_p[full])) / len(prob))
+        mean_p = np.where(full, sum_p / size, np.nan)
+        obs = np.where(full, sum_y / size, np.nan)
+    ece = float(np.sum(size[full] * np.abs(obs[full] - mean_p[full])) / np.sum(size))
     table = {
-        "bin": np.arange(bins),
+        "bin": np.arange(n_bins),
         "bin_lower": edges[:-1],
         "bin_upper": edges[1:],
         "count": count.astype(np.int64),
+        **({} if weights is None else {"weight": size}),
         "mean_predicted": mean_p,
         "observed_frequency": obs,
     }
@@ -130,26 +165,71 @@ def confusion_table(df, target, model, threshold, dropna, positive=None):
     return record(out, keep, **extra)
 
 
-def calibration_table(df, target, model, bins, dropna, positive=None):
-    """Reliability table with ECE, Brier score and log loss in attrs (see the accessor)."""
+BINNINGS = ("uniform", "quantile")
+
+
+def calibration_table(df, target, model, bins, dropna, positive=None, binning="uniform"):
+    """Reliability table with ECE, Brier score and log loss in attrs (see the accessor).
+
+    ``binning`` is "uniform", "quantile" or "both" (the two tables one
+    below the other); the ``binning`` column records which each row is.
+    A model fitted with a weight column (``weight=``) counts every row by
+    its weight: the bins' means, the ECE, the Brier score and the log loss.
+    ``attrs["ece"]`` is the first binning's ECE, ``attrs["ece_by_binning"]``
+    each one's.
+    """
+    chosen = BINNINGS if binning == "both" else (binning,)
+    if not set(chosen) <= set(BINNINGS):
+        raise ValueError(f"binning must be 'uniform', 'quantile' or 'both'; got {binning!r}.")
     P, classes, codes, keep, index = _probabilities(df, target, model, dropna, positive)
-    if len(classes) == 2:
-        summary = scores(P, codes, bins, positive=index)
-        table, _ = reliability(P[:, index], codes == index, bins)
-        out = pd.DataFrame(table)
-        extra = {"positive_class": classes[index]}
-    else:
-        summary = scores(P, codes, bins)
-        parts, by_class = [], {}
-        for k, c in enumerate(classes):
-            table, ece = reliability(P[:, k], codes == k, bins)
+    weights = _row_weights(df, model, keep)
+    binary = len(classes) == 2
+    shown = [index] if binary else range(len(classes))
+    parts, ece, class_ece = [], {}, []
+    for how in chosen:
+        by_class = {}
+        for k in shown:
+            table, by_class[classes[k]] = reliability(P[:, k], codes == k, bins, how, weights)
             part = pd.DataFrame(table)
-            part.insert(0, "class", c)
+            if not binary:
+                part.insert(0, "class", classes[k])
+            part.insert(0, "binning", how)
             parts.append(part)
-            by_class[c] = ece
-        out = pd.concat(parts, ignore_index=True)
-        extra = {"ece_by_class": by_class}
-    return record(out, keep, **summary, n=len(codes), bins=bins, classes=list(classes), **extra)
+        ece[how] = float(np.mean(list(by_class.values())))
+        class_ece.append(by_class)
+    out = pd.concat(parts, ignore_index=True)
+    summary = _weighted_scores(P, codes, index if binary else None, weights)
+    # The class-wise ECEs of the first binning, as attrs["ece"] is.
+    extra = {"positive_class": classes[index]} if binary else {"ece_by_class": class_ece[0]}
+    total = len(codes) if weights is None else float(np.sum(weights))
+    return record(
+        out, keep, **summary, ece=ece[chosen[0]], ece_by_binning=ece, n=len(codes),
+        weight_total=total, bins=bins, classes=list(classes), **extra,
+    )  # fmt: skip
+
+
+def _row_weights(df, model, keep):
+    """The frequency weights of the rows used, when the model was fitted with a column."""
+    column = getattr(model, "weight_column_", None)
+    if column is None or column not in df:
+        return None
+    return df.loc[np.asarray(keep), column].to_numpy(dtype=np.float64)
+
+
+def _weighted_scores(P, codes, positive, weights):
+    """Log loss and Brier score (binary: of ``positive``; multiclass: summed), weighted."""
+    n, K = P.shape
+    rows = np.arange(n)
+    w = np.ones(n) if weights is None else weights
+    eps = np.finfo(np.float64).eps
+    log_loss = float(np.average(-np.log(np.clip(P[rows, codes], eps, 1.0)), weights=w))
+    if positive is not None:
+        brier = float(np.average(((codes == positive) - P[:, positive]) ** 2, weights=w))
+    else:
+        onehot = np.zeros_like(P)
+        onehot[rows, codes] = 1.0
+        brier = float(np.average(np.sum((onehot - P) ** 2, axis=1), weights=w))
+    return {"log_loss": log_loss, "brier": brier}
 
 
 def empirical_threshold(p, pos, c_fp, c_fn, prefer):

@@ -9,6 +9,7 @@ import pandas as pd
 from .._checks.inputs import check_level
 from .arguments import check_positive_int
 from .fitting import class_codes, fitted_on_frame
+from .formatting import significant
 from .orientation import positive_index
 from .registry import is_fitted, model_label
 
@@ -40,19 +41,29 @@ def coefficient_view(model, level, include_intercept):
     }
 
 
+_ECE_NAMES = {"uniform": "ECE, equal-width", "quantile": "ECE, equal-count"}
+
+
 def calibration_view(table, target):
-    """Axis label, scores and title of the reliability diagram of a calibration table."""
+    """Axis label, scores and title of the reliability diagram of a calibration table.
+
+    A table with both binnings (``binning="both"``) gives one ECE each.
+    """
     classes = table.attrs["classes"]
     if len(classes) == 2:
         xlabel = f"predicted probability of {table.attrs['positive_class']}"
     else:
         xlabel = "predicted probability of the class (each class vs the rest)"
-    scores = {
-        "ECE": table.attrs["ece"],
-        "Brier": table.attrs["brier"],
-        "log loss": table.attrs["log_loss"],
-    }
-    title = f"Calibration of {target} ({table.attrs['n']} rows)"
+    by_binning = table.attrs.get("ece_by_binning", {"uniform": table.attrs["ece"]})
+    if len(by_binning) > 1:
+        scores = {_ECE_NAMES.get(how, how): value for how, value in by_binning.items()}
+    else:
+        scores = {"ECE": table.attrs["ece"]}
+    scores.update({"Brier": table.attrs["brier"], "log loss": table.attrs["log_loss"]})
+    rows = f"{table.attrs['n']} rows"
+    if table.attrs.get("weight_total", table.attrs["n"]) != table.attrs["n"]:
+        rows += f", counted by weight: {significant(table.attrs['weight_total'])}"
+    title = f"Calibration of {target} ({rows})"
     return {"table": table, "xlabel": xlabel, "scores": scores, "title": title}
 
 

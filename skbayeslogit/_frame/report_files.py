@@ -1,39 +1,81 @@
 """Files of ``skbayeslogit report --out``: CSV tables, PNG figures, models, one HTML page."""
 
 import base64
-import html
 import io
 from pathlib import Path
 
-from .registry import model_title
+import numpy as np
+
+from .evaluation import BINNINGS, calibration_table
+from .report_page import render_page
 
 
-def _figures(report, df):
-    """Figures for the HTML page and PNG files; empty without matplotlib."""
+def _drawn(figs, missing, name, draw):
+    """Draw one figure into ``figs``, or record in ``missing`` why it could not be."""
     try:
-        from ..plotting import require_matplotlib
+        figs[name] = draw()
+    except ImportError as exc:
+        missing[name] = str(exc)
+    except (TypeError, ValueError, KeyError, ArithmeticError, np.linalg.LinAlgError) as exc:
+        # A figure that fails leaves the rest of the report standing, and says why.
+        missing[name] = f"{type(exc).__name__}: {exc}"
 
-        require_matplotlib()
-    except ImportError:
-        return {}
-    figs = {}
+
+def _boundary_axes(report, table):
+    """The two numeric features with the largest standardised effects, or why there are none."""
+    if len(report.classes) != 2:
+        return None, f"it is drawn for two classes; the target has {len(report.classes)}"
+    if "sign_prob" not in table:
+        return None, "the primary model has no posterior to draw"
+    slopes = table.drop(index="intercept", errors="ignore")["estimate"].abs()
+    numeric = [p for p in slopes.sort_values(ascending=False).index if p in report.features]
+    if len(numeric) < 2:
+        return None, "it needs two numeric features"
+    return numeric[:2], None
+
+
+def _figures(report, df, calibration):
+    """Figures for the page and PNG files, and why any could not be drawn."""
+    from ..plotting import calibration_figure, coefficient_figure
+    from .figures import calibration_view, coefficient_view
+
+    figs, missing = {}, {}
     acc = df.bayeslogit
     for name, model in report.models.items():
         if hasattr(model, "coef_table"):
-            figs[f"coefficients_{name}"] = acc.plot_coefficients(model, level=report.level)
-    figs[f"calibration_{report.primary}"] = acc.plot_calibration(
-        report.target, report.models[report.primary]
+            _drawn(
+                figs,
+                missing,
+                f"coefficients_{name}",
+                lambda m=model: coefficient_figure(**coefficient_view(m, report.level, False)),
+            )
+    primary = report.primary
+    _drawn(
+        figs,
+        missing,
+        f"calibration_{primary}",
+        lambda: calibration_figure(**calibration_view(calibration[primary], report.target)),
     )
-    primary = report.models[report.primary]
-    table = report.coefficients[report.primary]
-    if len(report.classes) == 2 and len(report.features) >= 2 and "sign_prob" in table:
-        slopes = table.drop(index="intercept", errors="ignore")
-        top = list(slopes["estimate"].abs().sort_values(ascending=False).index[:2])
-        try:
-            figs["boundary"] = acc.plot_boundary(primary, top[0], top[1])
-        except (TypeError, ValueError):
-            pass
-    return figs
+    axes, why = _boundary_axes(report, report.coefficients[primary])
+    if axes is None:
+        missing["boundary"] = why
+    else:
+        model = report.models[primary]
+        _drawn(figs, missing, "boundary", lambda: acc.plot_boundary(model, *axes))
+    return figs, missing
+
+
+def _calibration_tables(report, df):
+    """Each model's calibration table in both binnings (equal-width and equal-count)."""
+    out = {}
+    for name, model in report.models.items():
+        given = report.calibration[name]
+        if "binning" in given and set(given["binning"]) >= set(BINNINGS):
+            out[name] = given
+            continue
+        bins = given.attrs.get("bins", 10)
+        out[name] = calibration_table(df, report.target, model, bins, False, binning="both")
+    return out
 
 
 def _png(fig):
@@ -42,15 +84,18 @@ def _png(fig):
     return buf.getvalue()
 
 
-def _tables(report):
+def _tables(report, calibration):
     """The report's tables by file name, in the order they are written."""
     tables = {"comparison": report.comparison, "evidence": report.evidence}
     if report.columns is not None:
         tables["columns"] = report.columns
     tables.update({f"coefficients_{n}": t for n, t in report.coefficients.items()})
-    tables.update({f"calibration_{n}": t for n, t in report.calibration.items()})
+    tables.update({f"calibration_{n}": t for n, t in calibration.items()})
     tables.update({f"column_evidence_{n}": t for n, t in report.column_evidence.items()})
     tables.update(confusion=report.confusion, doubtful_labels=report.doubtful)
+    rates = getattr(report, "class_rates", None)
+    if rates is not None:
+        tables["class_rates"] = rates
     if report.threshold is not None:
         tables["cost_threshold"] = report.threshold
     tables["predictions"] = report.predictions
@@ -73,10 +118,12 @@ def write_files(report, df, out_dir, caution):
     out = Path(out_dir)
     written = {"csv": [], "png": [], "model": [], "html": []}
 
-    for name, frame in _tables(report).items():
+    used = report.frame if report.frame is not None else df
+    calibration = _calibration_tables(report, used)
+    for name, frame in _tables(report, calibration).items():
         path = out / f"{name}.csv"
-        # columns.csv is a plain table: its row numbers mean nothing.
-        frame.to_csv(path, index=name != "columns")
+        # Plain tables: their row numbers mean nothing.
+        frame.to_csv(path, index=not name.startswith(("columns", "calibration_")))
         written["csv"].append(path)
 
     for name, model in report.models.items():
@@ -92,8 +139,8 @@ def write_files(report, df, out_dir, caution):
         written["model"].append(path)
 
     images = {}
-    used = report.frame if report.frame is not None else df
-    for name, fig in _figures(report, used).items():
+    figs, missing = _figures(report, used, calibration)
+    for name, fig in figs.items():
         data = _png(fig)
         path = out / f"{name}.png"
         path.write_bytes(data)
@@ -101,63 +148,6 @@ def write_files(report, df, out_dir, caution):
         images[name] = base64.b64encode(data).decode("ascii")
 
     page = out / "report.html"
-    page.write_text(_html(report, images, caution), encoding="utf-8")
+    page.write_text(render_page(report, calibration, images, missing, caution), encoding="utf-8")
     written["html"].append(page)
     return written
-
-
-def _table_html(frame, digits=3):
-    return frame.to_html(float_format=lambda v: f"{v:.{digits}f}", na_rep="-", border=0)
-
-
-def _html_table(parts, heading, frame):
-    parts.append(f"<h2>{heading}</h2>")
-    parts.append(_table_html(frame))
-
-
-def _html_image(parts, images, key):
-    if key in images:
-        parts.append(f"<img alt='{key}' src='data:image/png;base64,{images[key]}'>")
-
-
-def _html(report, images, caution):
-    pct = f"{round(report.level * 100):d}%"
-    esc = html.escape
-    parts = [
-        "<!DOCTYPE html><html lang='en'><head><meta charset='utf-8'>",
-        f"<title>skbayeslogit report: {esc(report.source)}</title>",
-        "<style>body{font-family:sans-serif;max-width:70em;margin:2em auto;color:#222}"
-        "table{border-collapse:collapse;margin:0.5em 0 1.5em}"
-        "td,th{padding:0.2em 0.7em;text-align:right;border-bottom:1px solid #ddd}"
-        "th{background:#f3f3f3}.caution{border:2px solid #444;padding:0.8em;background:#fafafa}"
-        "img{max-width:100%;margin:0.5em 0}</style></head><body>",
-        f"<h1>skbayeslogit report</h1><p>{esc(report.source)}; target "
-        f"<code>{esc(report.target)}</code>, classes {esc(', '.join(report.classes))}; "
-        f"features {esc(', '.join(report.features))}.</p>",
-        f"<p class='caution'>{esc(caution)}</p>",
-    ]
-    parts += [f"<p>Read: {esc(line)}</p>" for line in report.reading]
-    parts += [f"<p><em>Note: {esc(note)}</em></p>" for note in report.notes]
-    if report.columns is not None:
-        parts.append("<h2>Columns: the role of each, and why a column was left out</h2>")
-        parts.append(_table_html(report.columns.set_index("column")))
-    _html_table(parts, "Model comparison (cross-validated)", report.comparison)
-    _html_table(parts, "Prior scale and evidence", report.evidence)
-    for name, table in report.column_evidence.items():
-        _html_table(parts, f"{esc(model_title(name))}: evidence per column", table)
-    for name, table in report.coefficients.items():
-        _html_table(parts, f"{esc(model_title(name))}: coefficients ({pct})", table)
-        _html_image(parts, images, f"coefficients_{name}")
-    _html_table(parts, f"Calibration ({esc(report.primary)})", report.calibration[report.primary])
-    for key in (f"calibration_{report.primary}", "boundary"):
-        _html_image(parts, images, key)
-    _html_table(parts, "Confusion at threshold 0.5", report.confusion)
-    if report.threshold is not None:
-        _html_table(parts, "Cost-minimising threshold", report.threshold)
-    parts.append(
-        "<h2>Doubtful labels</h2><p>A prompt to re-check these records, not a verdict.</p>"
-    )
-    parts.append(_table_html(report.doubtful))
-    _html_table(parts, f"Predictions with {pct} credible bounds", report.predictions)
-    parts.append("</body></html>")
-    return "\n".join(parts)

@@ -1,0 +1,1 @@
+"""Drawing helpers behind :mod:`skbayeslogit.plotting` (matplotlib imported on first use)."""
