@@ -214,14 +214,10 @@ def build_report(
     if (cost_fp is None) != (cost_fn is None):
         raise ValueError("give both --cost-fp and --cost-fn, or neither.")
     top = check_positive_int("top", top)
-    notes = []
     reading = columns.pop("reading", None)
-    # The demo's ground truth rides in attrs, which pandas deep-copies on
-    # every column read: the computations get a view without them.
-    scenario, df = df.attrs, df.copy(deep=False)
-    df.attrs = {}
+    scenario, df = _without_attrs(df)
     lines, line_note = row_lines(df, reading)
-    notes += [line_note] if line_note else []
+    notes = [line_note] if line_note else []
     columns["missing"] = missing_policy(columns.get("missing"), dropna)
     choice = choose_columns(df, target, {**columns, "features": features}, reading)
     df, lines = _used_rows_and_lines(df, lines, target, choice.features, columns["missing"], notes)
@@ -275,6 +271,17 @@ def build_report(
         held = (held, codes, positive_index(primary_model, len(classes)))
     report.summary = findings(report, fits, held, random_state)
     return report
+
+
+def _without_attrs(df):
+    """The frame's ``attrs`` and a view of it without them.
+
+    The demo's ground truth rides in ``attrs``, which pandas deep-copies on
+    every column read; the computations run on the view.
+    """
+    view = df.copy(deep=False)
+    view.attrs = {}
+    return df.attrs, view
 
 
 def _checked(df, target, fits, primary, choice, seed, notes):

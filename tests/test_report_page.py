@@ -138,8 +138,6 @@ def test_demo_page_fits_1280_pixels_with_every_figure(browser, demo):
 
 def test_demo_page_opens_with_the_summary(browser, demo):
     report, page = demo
-    if getattr(report, "summary", None) is None:
-        pytest.xfail("Report.summary comes with the findings half of issue 19 (not merged yet)")
     found = _layout(_open(browser, page))
     assert found["sections"][0] == ["summary", "Summary"]
 

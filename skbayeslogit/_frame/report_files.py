@@ -93,7 +93,7 @@ def _tables(report, calibration):
     tables.update({f"calibration_{n}": t for n, t in calibration.items()})
     tables.update({f"column_evidence_{n}": t for n, t in report.column_evidence.items()})
     tables.update(confusion=report.confusion, doubtful_labels=report.doubtful)
-    rates = getattr(report, "class_rates", None)
+    rates = report.class_rates
     if rates is not None:
         tables["class_rates"] = rates
     if report.threshold is not None:

@@ -20,7 +20,6 @@ from .registry import model_title
 # How many predictions the page lists (predictions.csv holds every row).
 SHOWN_PREDICTIONS = 10
 # How many doubtful rows the page lists when the report does not say.
-SHOWN_DOUBTFUL = 10
 _BOUNDS = ("_lower", "_upper")
 # A K x K confusion table this wide goes behind <details>.
 WIDEST_CONFUSION = 10
@@ -120,8 +119,7 @@ def _ids(report):
 
 
 def _summary(report):
-    # Report.summary comes with the findings (issue 19); before it, no section.
-    sentences = getattr(report, "summary", None)
+    sentences = report.summary
     if not sentences:
         return None
     return _section("summary", "Summary", points=sentences)
@@ -255,7 +253,7 @@ def _calibration(report, calibration, figures):
 def _confusion(report):
     conf = report.confusion
     name = report.primary
-    rates = getattr(report, "class_rates", None)
+    rates = report.class_rates
     if "tp" in conf.columns:
         tables = [
             table(conf, "confusion", shown=["tp", "fp", "fn", "tn", "sensitivity", "specificity"])
@@ -290,7 +288,7 @@ def _costs(report):
 
 def _doubtful(report):
     frame = report.doubtful
-    top = getattr(report, "top", SHOWN_DOUBTFUL)
+    top = report.top
     listed = row_labels(frame.head(top), _ids(report))
     features = set(report.features)
     shown = [c for c in listed.columns if c not in features]

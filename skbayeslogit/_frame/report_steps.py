@@ -16,7 +16,7 @@ from .approximation import approximation_check
 from .arguments import check_positive_int
 from .comparison import compare_models
 from .doubtful import doubtful_table, precision_at
-from .evaluation import argmax_confusion, class_rates
+from .evaluation import argmax_confusion, calibration_table, class_rates
 from .fitting import class_codes, coefficient_table
 from .model import labels_of
 from .registry import available_models
@@ -90,7 +90,7 @@ def fit_models(df, target, fit_options, chosen, level, seed_params, progress):
             fits.at_floor.append(name)
         fits.models[name] = model
         fits.coefficients[name] = coefficient_table(model, level)
-        fits.calibration[name] = acc.calibration(target, model)
+        fits.calibration[name] = calibration_table(df, target, model, 10, False, binning="both")
         inner = getattr(model, "estimator_", model)
         evidence_rows.append(
             {
