@@ -25,7 +25,7 @@ from . import tempered_numpy
 from .config import in_serial_kernels, launch_or_numpy
 from .tempered_params import integer_power
 
-__all__ = ["normalise", "multiclass_loss", "binary_indexed", "binary_loss"]
+__all__ = ["normalise", "probabilities", "multiclass_loss", "binary_indexed", "binary_loss"]
 
 
 #: Work items (rows x classes) from which a call outside a fit's passes runs
@@ -109,6 +109,13 @@ def normalise(a, t, p, lam, want_p):
         lambda: (a, t, p, lam, want_p, 0, n, _n_chunks(n)),
         lambda: tempered_numpy.normalise(a, t, p, lam, want_p),
     )
+
+
+def probabilities(a, t):
+    """Tempered softmax of the rows of `a` (n, K): C-contiguous float64, finite."""
+    p = np.empty_like(a)
+    normalise(a, t, p, np.empty(a.shape[0]), True)
+    return p
 
 
 def multiclass_loss(a, idx, yprob, use_index, t1, t2, ls, warm, lam, loss, grad):
