@@ -81,8 +81,7 @@ def bench_case(name, make, n, d, K, target):
         target=f"ratio <= {target:g}",
         met=lambda f: f <= target,
         notes=(
-            f"max |p - plug-in| {float(np.max(np.abs(p_ours - p_ref))):.1e}; "
-            f"{len(times)} rounds"
+            f"max |p - plug-in| {float(np.max(np.abs(p_ours - p_ref))):.1e}; {len(times)} rounds"
         ),
     )
 

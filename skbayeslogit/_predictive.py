@@ -132,6 +132,12 @@ class PosteriorPredictiveMixin:
         generic path, ``expit(decision_function(X))``.
         """
         check_is_fitted(self, "coef_")
+        if self.coef_.shape[0] != 1 and self.predictive == "probit":
+            # The moderated log probabilities are normalised already: their
+            # exponentials only need the rounding of the sum removed.
+            P = np.exp(self._moderated_multiclass(X))
+            P /= P.sum(axis=1, keepdims=True)
+            return P
         if self.coef_.shape[0] != 1 or self.predictive == "mc":
             return super().predict_proba(X)
         plug_in = self.predictive == "map"

@@ -302,18 +302,20 @@ class TemperedLogisticClassifier(LinearClassifierBase):
     def predict_proba(self, X):
         """Tempered softmax probabilities at t2, shape (n_samples, K); rows sum to 1."""
         X = self._validate_predict_data(X)
-        if self.coef_.shape[0] == 1:
-            # Both columns from the normaliser, not 1 - p1: where p1 rounds to
-            # 1 the small class-0 probability (a polynomial tail for t2 > 1)
-            # would be lost to 0, and predict_log_proba would give -inf. The
-            # activations (0, a) are written in place: the public function's
-            # copy and finiteness scan would repeat the checks made on X.
-            scores = np.zeros((X.shape[0], 2))
-            scores[:, 1] = np.dot(X, self.coef_[0])
-            scores[:, 1] += self.intercept_[0]
-        else:
-            scores = np.dot(X, self.coef_.T)
-            scores += self.intercept_
+        # Overflow is reported below, as one error.
+        with np.errstate(over="ignore", invalid="ignore"):
+            if self.coef_.shape[0] == 1:
+                # Both columns from the normaliser, not 1 - p1: where p1
+                # rounds to 1 the small class-0 probability (a polynomial tail
+                # for t2 > 1) would be lost to 0, and predict_log_proba would
+                # give -inf. The activations (0, a) are written in place: the
+                # public function's copy and scan would repeat X's checks.
+                scores = np.zeros((X.shape[0], 2))
+                scores[:, 1] = np.dot(X, self.coef_[0])
+                scores[:, 1] += self.intercept_[0]
+            else:
+                scores = np.dot(X, self.coef_.T)
+                scores += self.intercept_
         if not np.all(np.isfinite(scores)):
             # |x| is bounded by the input check, but a product can overflow.
             raise ValueError("the activations X @ coef_.T overflow; rescale X.")
