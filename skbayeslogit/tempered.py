@@ -214,8 +214,10 @@ class TemperedLogisticClassifier(LinearClassifierBase):
         data = self._fit_data(X, y, sample_weight)
         design = data.design
         prior = design.layout.prior_precision(self._scale)
-        theta0 = self._starting_point(data, prior, previous)
         likelihood = BiTemperedLikelihood(self._t1, self._t2, self.label_smoothing, design.q)
+        # Loads while the convex start runs.
+        likelihood.load_kernel(design.n)
+        theta0 = self._starting_point(data, prior, previous)
         problem = NewtonProblem(design, likelihood, likelihood.labels(data.y), data.w, prior)
 
         def objective(theta):

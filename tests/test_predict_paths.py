@@ -82,3 +82,68 @@ def test_tempered_predict_proba_reports_overflowing_activations():
     model.coef_ = np.full_like(model.coef_, 1e308)
     with pytest.raises(ValueError, match="overflow"):
         model.predict_proba(np.full((2, X.shape[1]), 10.0))
+
+
+class _Recorder:
+    """Stands in for a numba dispatcher: records the argument types of each call."""
+
+    def __init__(self, signatures, stop=False):
+        self.signatures = signatures
+        self.stop = stop
+        self.calls = []
+
+    def __call__(self, *args):
+        import numba
+
+        self.calls.append(tuple(numba.typeof(a) for a in args))
+        if self.stop:  # a fit's pass: end the fit there
+            raise _Stop
+
+
+class _Stop(Exception):
+    pass
+
+
+@pytest.mark.parametrize(("K", "t2"), [(2, 1.2), (2, 1.3), (4, 1.2)])
+def test_cached_loss_is_loaded_with_the_argument_types_of_the_fit(monkeypatch, K, t2):
+    """load_cached_loss calls the serial kernel that a fit's passes call, with
+    the same numba argument types (so the fit then runs the loaded code and
+    no second signature is compiled); it does nothing without a cached copy
+    or below LOAD_MIN_ELEMENTS."""
+    import time
+
+    from skbayeslogit._kernels import tempered_dispatch as tk
+    from skbayeslogit._kernels.config import serial_kernels
+
+    q = 1 if K == 2 else K
+    family = (
+        ("blocked" if tk.binary_indexed(t2) else "binary") if q == 1 else tk._kernel_family(K, t2)  # noqa: SLF001 - the family the fit takes
+    )
+    loading = _Recorder([])
+    monkeypatch.setitem(tk._LOSS_KERNELS, family, (loading, loading))
+    monkeypatch.setattr(tk, "_on_disk", lambda dispatcher: dispatcher is loading)
+    tk.load_cached_loss(q, 0.8, t2, 0.0, tk.LOAD_MIN_ELEMENTS - 1)
+    time.sleep(0.2)
+    assert loading.calls == []
+    tk.load_cached_loss(q, 0.8, t2, 0.0, tk.LOAD_MIN_ELEMENTS)
+    for _ in range(100):
+        if loading.calls:
+            break
+        time.sleep(0.05)
+    assert len(loading.calls) == 1
+    # A fit's pass, with the kernel "compiled": the call the fit makes.
+    passing = _Recorder([loading.calls[0]], stop=True)
+    monkeypatch.setitem(tk._LOSS_KERNELS, family, (passing, passing))
+    rng = np.random.default_rng(0)
+    X = rng.normal(size=(6000, 3))
+    y = rng.integers(0, K, size=6000)
+    with serial_kernels(), pytest.raises(_Stop):
+        TemperedLogisticClassifier(t1=0.8, t2=t2, start="zero").fit(X, y)
+    assert passing.calls[0] == loading.calls[0]
+    # Without a cached copy: nothing.
+    monkeypatch.setattr(tk, "_on_disk", lambda dispatcher: False)
+    idle = _Recorder([])
+    monkeypatch.setitem(tk._LOSS_KERNELS, family, (idle, idle))
+    tk.load_cached_loss(q, 0.8, t2, 0.0, tk.LOAD_MIN_ELEMENTS)
+    time.sleep(0.2)
+    assert idle.calls == []
