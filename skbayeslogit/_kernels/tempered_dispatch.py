@@ -180,10 +180,11 @@ def binary_loss(a, y, t1, t2, ls, loss, grad):
     launch_or_numpy(lambda: _LOSS_KERNELS["blocked"], 2 * n, args, numpy_path)
 
 
-#: Work items of a fit's pass from which :func:`load_cached_loss` pays: the
-#: numpy path costs about 1 us more a binary row than the kernel, loading a
-#: cached kernel about 0.1-0.3 s of one core (benchmarks/README.md).
-LOAD_MIN_ELEMENTS = 1 << 16
+#: Work items of a fit's pass from which :func:`load_cached_loss` pays within
+#: one fit: the numpy path costs about 1 us more a binary row than the
+#: kernel, over about six passes; loading the cached blocked kernel about
+#: 0.4 s of one core (benchmarks/README.md).
+LOAD_MIN_ELEMENTS = 1 << 17
 
 
 def _on_disk(dispatcher):
