@@ -129,12 +129,24 @@ class PosteriorPredictiveMixin:
         Binary models with a Gaussian-moment predictive finish each piece's
         probabilities on the worker threads as soon as its latent moments
         are computed, in one pass over X; the values are those of the
-        generic path, ``expit(decision_function(X))``.
+        generic path, ``expit(decision_function(X))``, except for a model
+        with a ``_binary_argument`` hook (probit: ``Phi(+-m / sqrt(1 + v))``
+        directly, equal to the generic path to rounding).
         """
         check_is_fitted(self, "coef_")
+        if self.coef_.shape[0] != 1 and self.predictive == "probit":
+            # The moderated log probabilities are normalised already: their
+            # exponentials only need the rounding of the sum removed.
+            P = np.exp(self._moderated_multiclass(X))
+            P /= P.sum(axis=1, keepdims=True)
+            return P
         if self.coef_.shape[0] != 1 or self.predictive == "mc":
             return super().predict_proba(X)
         plug_in = self.predictive == "map"
+        # A model whose predictive is link(t) for an argument t of the
+        # moments (probit: Phi(m / sqrt(1 + v))) says so; the others go
+        # through their log-odds.
+        argument = getattr(self, "_binary_argument", None)
         P = None
 
         def make_chunk(n):
@@ -143,7 +155,13 @@ class PosteriorPredictiveMixin:
             return finish
 
         def finish(mean, var, start, stop):
-            scores = self._binary_decision(mean, np.zeros_like(var) if plug_in else var)
+            var = np.zeros_like(var) if plug_in else var
+            if argument is not None:
+                t = argument(mean, var)
+                P[start:stop, 1] = self._binary_link(t)
+                P[start:stop, 0] = self._binary_link(np.negative(t, out=t))
+                return
+            scores = self._binary_decision(mean, var)
             expit(scores, out=P[start:stop, 1])
             np.negative(scores, out=scores)
             expit(scores, out=P[start:stop, 0])

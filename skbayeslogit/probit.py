@@ -135,6 +135,12 @@ class ProbitClassifier(GaussianPosteriorClassifier):
         return ndtr(eta)
 
     @staticmethod
+    def _binary_argument(mean, var):
+        # predict_proba is Phi(t) and Phi(-t) of this t: two ndtr calls
+        # instead of the log-odds (two log_ndtr) and two expit.
+        return mean / np.sqrt(1.0 + var)
+
+    @staticmethod
     def _binary_decision(mean, var):
         # log-odds of Phi(t): Phi(-t) = 1 - Phi(t) exactly, and log_ndtr of
         # each side keeps the difference finite (about t^2 / 2) in the tails.

@@ -19,10 +19,10 @@ from ._fit.lbfgs import minimize_scaled
 from ._fit.likelihoods import BinaryLogistic, MultinomialLogistic
 from ._fit.newton import NewtonProblem, solve_map
 from ._fit.tempered_likelihood import BiTemperedLikelihood
+from ._kernels.tempered_dispatch import probabilities
 from ._linear.layout import ParameterLayout
 from ._linear.scaling import ColumnScaling
 from ._linear.sources import dask_aware
-from .tempered_functions import tempered_softmax
 
 # Rows of the sample on which the convex start is fitted when the data are
 # larger: the start only has to land in the right basin.
@@ -214,8 +214,10 @@ class TemperedLogisticClassifier(LinearClassifierBase):
         data = self._fit_data(X, y, sample_weight)
         design = data.design
         prior = design.layout.prior_precision(self._scale)
-        theta0 = self._starting_point(data, prior, previous)
         likelihood = BiTemperedLikelihood(self._t1, self._t2, self.label_smoothing, design.q)
+        # Loads while the convex start runs.
+        likelihood.load_kernel(design.n)
+        theta0 = self._starting_point(data, prior, previous)
         problem = NewtonProblem(design, likelihood, likelihood.labels(data.y), data.w, prior)
 
         def objective(theta):
@@ -301,14 +303,25 @@ class TemperedLogisticClassifier(LinearClassifierBase):
     @dask_aware
     def predict_proba(self, X):
         """Tempered softmax probabilities at t2, shape (n_samples, K); rows sum to 1."""
-        scores = self.decision_function(X)
-        t2 = float(self.t2)
-        if scores.ndim == 1:
-            # Both columns from the kernel, not 1 - p1: where p1 rounds to 1
-            # the small class-0 probability (a polynomial tail for t2 > 1)
-            # would be lost to 0, and predict_log_proba would give -inf.
-            return tempered_softmax(np.column_stack([np.zeros_like(scores), scores]), t2)
-        return tempered_softmax(scores, t2)
+        X = self._validate_predict_data(X)
+        # Overflow is reported below, as one error.
+        with np.errstate(over="ignore", invalid="ignore"):
+            if self.coef_.shape[0] == 1:
+                # Both columns from the normaliser, not 1 - p1: where p1
+                # rounds to 1 the small class-0 probability (a polynomial tail
+                # for t2 > 1) would be lost to 0, and predict_log_proba would
+                # give -inf. The activations (0, a) are written in place: the
+                # public function's copy and scan would repeat X's checks.
+                scores = np.zeros((X.shape[0], 2))
+                scores[:, 1] = np.dot(X, self.coef_[0])
+                scores[:, 1] += self.intercept_[0]
+            else:
+                scores = np.dot(X, self.coef_.T)
+                scores += self.intercept_
+        if not np.all(np.isfinite(scores)):
+            # |x| is bounded by the input check, but a product can overflow.
+            raise ValueError("the activations X @ coef_.T overflow; rescale X.")
+        return probabilities(scores, float(self.t2))
 
     @dask_aware
     def predict_log_proba(self, X):

@@ -21,7 +21,13 @@ from ._checks.tempered_arrays import (
     check_finite,
     check_scalar,
 )
-from ._kernels.tempered_dispatch import binary_indexed, binary_loss, multiclass_loss, normalise
+from ._kernels.tempered_dispatch import (
+    binary_indexed,
+    binary_loss,
+    multiclass_loss,
+    normalise,
+    probabilities,
+)
 
 __all__ = [
     "log_t",
@@ -174,8 +180,7 @@ def tempered_softmax(activations, t):
     """
     a, one_row = as_activations(activations)
     t = check_scalar("t", t, 0.0, T_MAX)
-    p = np.empty_like(a)
-    normalise(a, t, p, np.empty(a.shape[0]), True)
+    p = probabilities(a, t)
     return p[0] if one_row else p
 
 

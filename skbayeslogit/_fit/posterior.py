@@ -27,6 +27,8 @@ _MULTI_ROWS = 2048
 # Binary moments: rows per piece finished by the caller's ``chunk`` (its
 # moments, 128 KiB each, are still in L2).
 _FINISH_ROWS = 16384
+# ... and at least this many (a piece's fixed costs stay small).
+_MIN_PIECE_ROWS = 4096
 
 
 class GaussianPosterior:
@@ -209,7 +211,10 @@ class GaussianPosterior:
         n = X.shape[0]
         mean = np.empty(n)
         var = np.empty(n)
-        rows = min(_FINISH_ROWS, max(n, 1))
+        # Each row's moments are its own, so the split is free: at least
+        # eight pieces when n allows, so that a worker slowed by other load
+        # leaves fewer rows to wait for.
+        rows = min(_FINISH_ROWS, max(_MIN_PIECE_ROWS, -(-n // 8)), max(n, 1))
 
         def task(first, last):
             ok = True
@@ -221,7 +226,8 @@ class GaussianPosterior:
                     chunk(mean[start:stop], var[start:stop], start, stop)
             return ok
 
-        in_range = all(map_tasks(task, row_spans(n, rows), work=float(n) * plan.work, blas=False))
+        spans = row_spans(n, rows, span=rows)
+        in_range = all(map_tasks(task, spans, work=float(n) * plan.work, blas=False))
         return mean, var, in_range
 
 

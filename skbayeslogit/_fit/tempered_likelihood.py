@@ -10,7 +10,12 @@ and each objective evaluation only launches kernels.
 import numpy as np
 
 from .._kernels.config import serial_kernels
-from .._kernels.tempered_dispatch import binary_indexed, binary_loss, multiclass_loss
+from .._kernels.tempered_dispatch import (
+    binary_indexed,
+    binary_loss,
+    load_cached_loss,
+    multiclass_loss,
+)
 
 
 class BiTemperedLikelihood:
@@ -55,6 +60,13 @@ class BiTemperedLikelihood:
     def wants_rows(self):
         """Whether the design should pass each span's rows (the normalisers are kept)."""
         return self.normalisers is not None
+
+    def load_kernel(self, n):
+        """Start loading this loss's kernel from the disk cache for a fit of n rows.
+
+        See :func:`skbayeslogit._kernels.tempered_dispatch.load_cached_loss`.
+        """
+        load_cached_loss(self.q, self.t1, self.t2, self.ls, n * max(self.q, 2))
 
     def labels(self, codes):
         """The kernels' labels (``label_dtype``) of class codes (n,), converted once per fit.

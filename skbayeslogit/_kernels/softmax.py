@@ -34,6 +34,8 @@ import) and cached on disk when a cache directory is writable (see
 All run in the design's worker threads (``nogil``) on the rows of one task.
 """
 
+import functools
+
 import numpy as np
 
 from .config import jit, numpy_first
@@ -152,6 +154,17 @@ def _moderated_finish(e, top, out):  # pragma: no cover - runs compiled
             out[i, k] -= shift
 
 
+@functools.cache
+def _pair_positions(K):
+    # The class pairs k < j and where c_kk, c_jj and c_kj sit in a row of
+    # packed covariances; the same for every piece of a prediction.
+    position = np.empty((K, K), dtype=np.int64)
+    ku, lu = np.triu_indices(K)
+    position[ku, lu] = np.arange(len(ku))
+    k, j = np.triu_indices(K, 1)
+    return k, j, position[k, k], position[j, j], position[k, j]
+
+
 def moderated_softmax_rows(mean, pairs, out):
     """Moderated log predictive of each row, written into ``out``.
 
@@ -166,20 +179,12 @@ def moderated_softmax_rows(mean, pairs, out):
         Normalised log probabilities.
     """
     m, K = mean.shape
-    position = np.empty((K, K), dtype=np.int64)
-    ku, lu = np.triu_indices(K)
-    position[ku, lu] = np.arange(len(ku))
-    k, j = np.triu_indices(K, 1)
     z = np.empty((m, K, K))
     top = np.empty((m, K))
     _moderated_shifted(
         np.ascontiguousarray(mean, dtype=np.float64),
         np.ascontiguousarray(pairs, dtype=np.float64),
-        k,
-        j,
-        position[k, k],
-        position[j, j],
-        position[k, j],
+        *_pair_positions(K),
         z,
         top,
     )

@@ -18,6 +18,7 @@ checks and converts user input, the fit converts its labels once.
 from __future__ import annotations
 
 import importlib
+import threading
 
 import numpy as np
 
@@ -25,7 +26,14 @@ from . import tempered_numpy
 from .config import in_serial_kernels, launch_or_numpy
 from .tempered_params import integer_power
 
-__all__ = ["normalise", "multiclass_loss", "binary_indexed", "binary_loss"]
+__all__ = [
+    "normalise",
+    "probabilities",
+    "multiclass_loss",
+    "binary_indexed",
+    "binary_loss",
+    "load_cached_loss",
+]
 
 
 #: Work items (rows x classes) from which a call outside a fit's passes runs
@@ -111,6 +119,13 @@ def normalise(a, t, p, lam, want_p):
     )
 
 
+def probabilities(a, t):
+    """Tempered softmax of the rows of `a` (n, K): C-contiguous float64, finite."""
+    p = np.empty_like(a)
+    normalise(a, t, p, np.empty(a.shape[0]), True)
+    return p
+
+
 def multiclass_loss(a, idx, yprob, use_index, t1, t2, ls, warm, lam, loss, grad):
     """Bi-tempered loss (n,) and gradient (n, K) of activations `a` (n, K).
 
@@ -163,3 +178,72 @@ def binary_loss(a, y, t1, t2, ls, loss, grad):
         )  # fmt: skip
 
     launch_or_numpy(lambda: _LOSS_KERNELS["blocked"], 2 * n, args, numpy_path)
+
+
+#: Work items of a fit's pass from which :func:`load_cached_loss` pays within
+#: one fit: the numpy path costs about 1 us more a binary row than the
+#: kernel, over about six passes; loading the cached blocked kernel about
+#: 0.4 s of one core (benchmarks/README.md).
+LOAD_MIN_ELEMENTS = 1 << 17
+
+
+def _on_disk(dispatcher):
+    """Whether numba's disk cache holds code of `dispatcher` for its current source."""
+    try:
+        # numba's index of the function's cache file: empty when missing,
+        # stale (another source stamp) or written by another numba.
+        return bool(dispatcher._cache._cache_file._load_index())
+    except Exception:  # noqa: BLE001 - no cache, or numba's internals moved
+        return False
+
+
+def load_cached_loss(q, t1, t2, ls, work):
+    """Start loading the serial loss kernel of a fit from numba's disk cache.
+
+    A fit's passes run the numpy path until the serial kernel is compiled
+    (:func:`.config.launch_or_numpy`), and start its compile only after many
+    work items, so that a process that fits little never waits for or
+    shares its cores with a long compile. When the disk cache already holds
+    the kernel, loading it costs a fraction of one large fit's numpy passes:
+    this loads it in a background thread at the start of such a fit (`work`
+    items a pass, from :data:`LOAD_MIN_ELEMENTS`), by one call of the kernel
+    of the family and argument types that the fit's passes use. Without a
+    cached copy it does nothing: the compile waits for the usual rule.
+
+    Parameters
+    ----------
+    q : int
+        1 for the binary model, else K.
+    t1, t2, ls : float
+        The loss's temperatures and label smoothing.
+    work : int
+        Work items (rows x classes) of one of the fit's passes.
+    """
+    if work < LOAD_MIN_ELEMENTS:
+        return
+    k = 2 if q == 1 else q
+    if q == 1:
+        family = "blocked" if binary_indexed(t2) else "binary"
+    else:
+        family = _kernel_family(k, t2)
+    serial = _LOSS_KERNELS[family][0]
+    if getattr(serial, "signatures", True) or not _on_disk(serial):
+        return
+    threading.Thread(target=_serial_call, args=(q, t1, t2, ls), daemon=True).start()
+
+
+def _serial_call(q, t1, t2, ls):
+    # Outside serial_kernels(), a call of BLOCKED_MIN_ELEMENTS items takes
+    # the family a fit's passes take and, being below
+    # config.PARALLEL_MIN_ELEMENTS, the serial build: that build is
+    # compiled (here: loaded) with the passes' argument types.
+    if q == 1:
+        n = BLOCKED_MIN_ELEMENTS // 2
+        y = np.zeros(n, dtype=np.int64 if binary_indexed(t2) else np.float64)
+        binary_loss(np.zeros(n), y, t1, t2, ls, np.empty(n), np.empty(n))
+        return
+    n = -(-BLOCKED_MIN_ELEMENTS // q)
+    multiclass_loss(
+        np.zeros((n, q)), np.zeros(n, dtype=np.int64), np.empty((1, q)), True, t1, t2, ls,
+        False, np.empty(n), np.empty(n), np.empty((n, q)),
+    )  # fmt: skip
