@@ -52,10 +52,16 @@ class ApproximationCheck:
         One or two plain sentences for a report's summary.
     draws : ndarray of shape (S, p)
     weights : ndarray of shape (S,)
+    input_map : callable or None
+        Applied to the X given to ``predict_proba`` and ``predict_interval``
+        before the checked estimator sees it: a wrapper that checked its
+        inner estimator on transformed features (standardised, encoded)
+        sets it, so that predictions take the wrapper's own input.
     """
 
     def __init__(self, estimator, draws, weights, pareto_k, threshold, chains=None, info=None):
         self._estimator = estimator
+        self.input_map = None
         self.draws = draws
         self.weights = weights
         self.pareto_k = float(pareto_k)
@@ -147,6 +153,8 @@ class ApproximationCheck:
     def _latent_blocks(self, X):
         """(start, stop, eta, n) over row blocks of X's n rows; eta (m, S) or (m, S, K)."""
         est = self._estimator
+        if self.input_map is not None:
+            X = self.input_map(X)
         X = est._validate_predict_data(X)
         layout = ParameterLayout.of_estimator(est)
         q, S = layout.q, self.n_draws
