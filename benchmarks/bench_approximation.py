@@ -82,7 +82,8 @@ def _reference_bounds(model, X, y, n_draws):
     from skbayeslogit._fit.hmc import run_chains
 
     target = model._exact_posterior(X, y, None)
-    chains, _ = run_chains(target, np.random.default_rng(12345), 8, 300, n_draws)
+    rng = np.random.default_rng(12345)
+    chains, _ = run_chains(target, rng, 8, 300, n_draws, n_draws, tail_ess=None)
     draws = chains.reshape(-1, chains.shape[2])
     return np.quantile(draws, [0.05, 0.95], axis=0), draws.std(axis=0)
 

@@ -5,7 +5,7 @@ import warnings
 import numpy as np
 from sklearn.exceptions import ConvergenceWarning
 
-from ._base import LinearClassifierBase
+from ._base import TOL_MAX, LinearClassifierBase
 from ._checks.params import (
     Boolean,
     Interval,
@@ -108,7 +108,7 @@ class TemperedLogisticClassifier(LinearClassifierBase):
         "zero" starts from all-zero parameters.
     max_iter : int, default=500
         L-BFGS iterations.
-    tol : float, default=1e-6
+    tol : float in (0, 0.01], default=1e-6
         L-BFGS stops when the largest entry of the gradient of the mean
         objective (divided by ``sum(sample_weight)``) is below ``tol``, the
         gradient taken with respect to the parameters of the features
@@ -181,7 +181,9 @@ class TemperedLogisticClassifier(LinearClassifierBase):
             "prior_scale": Scale(),
             "start": Options("convex", "zero", listing="or"),
             "max_iter": PositiveInt(),
-            "tol": PositiveFloat(),
+            "tol": PositiveFloat(
+                maximum=TOL_MAX, why="the mean objective's largest gradient entry"
+            ),
             "fit_intercept": Boolean(),
             "warm_start": Boolean(),
         }

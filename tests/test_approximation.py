@@ -296,3 +296,127 @@ def test_accessor_bad_arguments():
     plain = DummyClassifier().fit(df[list(FEATURES)], df[TARGET])
     with pytest.raises(TypeError, match="Laplace posterior.*DummyClassifier"):
         df.bayeslogit.check_approximation(TARGET, plain)
+
+
+def test_standardized_wrapper_checks_its_estimator():
+    """StandardizedClassifier.check_approximation is its wrapped estimator's check.
+
+    Reference: the same estimator fitted by hand on scikit-learn's
+    StandardScaler output (population sd, as the wrapper's), checked with
+    the same seed on the same rows and weights: the same posterior, so the
+    same k and corrected table; predictions take recorded units.
+    """
+    from sklearn.preprocessing import StandardScaler
+
+    from skbayeslogit.standardized import StandardizedClassifier
+
+    rng = np.random.default_rng(3)
+    X = rng.normal([5.0, -200.0, 0.01], [2.0, 50.0, 0.003], size=(60, 3))
+    y = (X[:, 0] - 5 + rng.standard_normal(60) > 0).astype(int)
+    wrapped = StandardizedClassifier(LaplaceLogisticClassifier(prior_scale=1.0)).fit(X, y)
+    check = wrapped.check_approximation(X, y, n_draws=800, random_state=5)
+    Z = StandardScaler().fit_transform(X)
+    by_hand = LaplaceLogisticClassifier(prior_scale=1.0).fit(Z, y)
+    ref = by_hand.check_approximation(Z, y, n_draws=800, random_state=5)
+    assert check.pareto_k == pytest.approx(ref.pareto_k, abs=1e-6)
+    assert np.allclose(check.coef_table(), ref.coef_table(), rtol=1e-6, atol=1e-9)
+    assert np.allclose(check.predict_proba(X), ref.predict_proba(Z), rtol=1e-6, atol=1e-9)
+    lo, hi = check.predict_interval(X)
+    assert np.allclose(lo, ref.predict_interval(Z)[0], rtol=1e-6, atol=1e-9)
+    # Only when the wrapped estimator has a Laplace posterior.
+    from skbayeslogit import TemperedLogisticClassifier
+
+    tempered = StandardizedClassifier(TemperedLogisticClassifier()).fit(X, y)
+    assert not hasattr(tempered, "check_approximation")
+
+
+def _weighted_frame():
+    from skbayeslogit.datasets import FEATURES, TARGET, make_orchard_lots
+
+    df = make_orchard_lots(120, random_state=4)
+    df["w"] = np.random.default_rng(0).integers(1, 4, len(df)).astype(float)
+    return df, list(FEATURES), TARGET
+
+
+def test_frame_model_check_uses_its_rows_and_weights():
+    """FrameModel.check_approximation: the final estimator's check on the encoded rows, weighted.
+
+    Reference: the final StandardizedClassifier checked by hand on the
+    encoded columns with the weight column as sample_weight (same seed);
+    and the accessor's check of the same fitted model.
+    """
+    df, features, target = _weighted_frame()
+    model = df.bayeslogit.fit(target, features, weight="w")
+    check = model.check_approximation(df, n_draws=600, random_state=1)
+    final = model.pipeline_[-1]
+    ref = final.check_approximation(
+        model.transform(df),
+        df[target].to_numpy(),
+        sample_weight=df["w"].to_numpy(),
+        n_draws=600,
+        random_state=1,
+    )
+    assert check.pareto_k == pytest.approx(ref.pareto_k, abs=1e-6)
+    assert np.allclose(check.coef_table(), ref.coef_table(), rtol=1e-6, atol=1e-9)
+    # Unweighted, the posterior differs: the weights were used.
+    unweighted = final.check_approximation(
+        model.transform(df), df[target].to_numpy(), n_draws=600, random_state=1
+    )
+    assert not np.allclose(check.coef_table()["estimate"], unweighted.coef_table()["estimate"])
+    accessor = df.bayeslogit.check_approximation(target, model, n_draws=600, random_state=1)
+    assert accessor.pareto_k == pytest.approx(check.pareto_k, abs=1e-12)
+    # Predictions take the table.
+    assert np.allclose(check.predict_proba(df), ref.predict_proba(model.transform(df)))
+
+
+def test_approximation_verdict():
+    """The report's sentence and table: the figures the check holds, oriented as the model."""
+    from skbayeslogit._frame.approximation import approximation_verdict
+
+    x, y = _data(2000, 1.0, 0.3)
+    model = LaplaceLogisticClassifier(prior_scale=PRIOR).fit(x, y)
+    good = model.check_approximation(x, y, n_draws=1000, random_state=0)
+    sentence, table = approximation_verdict(good)
+    assert good.reliable and table is None
+    assert sentence.startswith("The fast (Laplace) posterior agrees")
+    assert f"k = {good.pareto_k:.2f}" in sentence and f"{good.threshold:.2f}" in sentence
+
+    # scikit-learn's breast-cancer data, standardised, prior sd 3: k 1.13 at
+    # 2,200 draws (benchmarks/README.md), far above the threshold.
+    from sklearn.datasets import load_breast_cancer
+    from sklearn.preprocessing import StandardScaler
+
+    X, yy = load_breast_cancer(return_X_y=True)
+    X = StandardScaler().fit_transform(X)
+    bad_model = LaplaceLogisticClassifier(prior_scale=3.0).fit(X, yy)
+    bad = bad_model.check_approximation(X, yy, n_draws=1000, random_state=0)
+    assert not bad.reliable
+    sentence, table = approximation_verdict(bad, level=0.8)
+    assert "does not match" in sentence and "importance sampling" in sentence
+    assert f"{bad.ess:,.0f} of 1,000" in sentence
+    shift = float(np.abs(bad.mean_shift).max())
+    assert f"{shift:.2f} sd" in sentence
+    assert table.attrs["method"] == "importance sampling"
+    assert np.allclose(table.to_numpy(), bad.coef_table(0.8).to_numpy())
+
+    refined = bad_model.check_approximation(X, yy, n_draws=1000, random_state=0, refine=True)
+    sentence, table = approximation_verdict(refined)
+    assert "sampler" in sentence and table.attrs["method"] == "sampler"
+    assert f"{refined.rhat.max():.3f}" in sentence
+
+
+def test_verdict_table_turned_to_the_positive_class():
+    """A FrameModel whose positive class is classes_[0]: signs and bounds flipped."""
+    from skbayeslogit._frame.approximation import approximation_verdict
+
+    df, features, target = _weighted_frame()
+    classes = sorted(df[target].unique())
+    model = df.bayeslogit.fit(target, features, positive=classes[0])
+    assert model.positive_index_ == 0
+    check = model.check_approximation(df, n_draws=300, random_state=0)
+    check.reliable = False  # force the table: the orientation is what is tested
+    _, table = approximation_verdict(check, model)
+    raw = check.coef_table()
+    assert np.allclose(table["estimate"], -raw["estimate"])
+    assert np.allclose(table["lower"], -raw["upper"])
+    assert table.attrs["positive_class"] == classes[0]

@@ -165,3 +165,30 @@ def test_without_dask_the_message_names_the_extra(monkeypatch, data):
     model = LaplaceLogisticClassifier(prior_scale=1.0).fit(X, y2)  # numpy still works
     with pytest.raises(ImportError, match=r"skbayeslogit\[dask\]"):
         model.predict(FakeDaskArray())
+
+
+@pytest.mark.parametrize(
+    ("model", "params"),
+    [(LaplaceLogisticClassifier, {"prior_scale": 1.0}), (ProbitClassifier, {"prior_scale": None})],
+)
+def test_dask_offset_column_fits_as_in_memory(client, model, params):
+    """A column 1e8 + N(0, 1) (issue 21): centred block by block, as in memory.
+
+    Reference: the in-memory fit (checked against statsmodels and
+    scikit-learn in test_numerics_faults.py); both solve the same centred
+    problem to tol=1e-12, so they agree to the rounding of the chunk sums
+    (RTOL); the intercept a - 1e8 b carries the slope's relative error.
+    """
+    import dask.array as da
+
+    rng = np.random.default_rng(21)
+    X = rng.standard_normal((1_500, 2))
+    y = (rng.random(1_500) < 1.0 / (1.0 + np.exp(-(1.4 * X[:, 0] - 0.5 * X[:, 1])))).astype(int)
+    X = X + [1e8, 0.0]
+    ref = model(tol=1e-12, **params).fit(X, y)
+    got = model(tol=1e-12, **params).fit(
+        da.from_array(X, chunks=(400, 2)), da.from_array(y, chunks=400)
+    )
+    assert _rel(got.coef_, ref.coef_) < RTOL
+    assert _rel(got.intercept_, ref.intercept_) < RTOL
+    assert _rel(got.posterior_cov_[:2, :2], ref.posterior_cov_[:2, :2]) < RTOL

@@ -117,3 +117,49 @@ def test_set_block_rows_rejects_nonsense():
     with pytest.raises(ValueError, match="positive integer"):
         set_block_rows(0)
     assert set_block_rows(None) is None
+
+
+# A column 1e8 + N(0, 1) (issue 21): the in-memory fit centres it and maps
+# the posterior back; the block-wise fit must do the same, with the centre
+# taken from the validation pass's moments (no extra read). Reference: the
+# in-memory fit, itself checked against statsmodels and scikit-learn in
+# test_numerics_faults.py. Both solve the same centred problem to tol=1e-12,
+# so they differ by the rounding of sums added in another order (RTOL as
+# above); the intercept, a - 1e8 b, carries the slope's relative error.
+OFFSET_CASES = [
+    (LaplaceLogisticClassifier, {"prior_scale": 1.0}),
+    (LaplaceLogisticClassifier, {"prior_scale": "auto"}),
+    (ProbitClassifier, {"prior_scale": None}),
+]
+
+
+@pytest.fixture(scope="module")
+def offset_data(tmp_path_factory):
+    rng = np.random.default_rng(21)
+    X = rng.standard_normal((1_500, 2))
+    y = (rng.random(1_500) < 1.0 / (1.0 + np.exp(-(1.4 * X[:, 0] - 0.5 * X[:, 1])))).astype(int)
+    X = X + [1e8, 0.0]
+    path = tmp_path_factory.mktemp("offset") / "X.npy"
+    np.save(path, X)
+    return X, np.load(path, mmap_mode="r"), y
+
+
+@pytest.mark.parametrize(("model", "params"), OFFSET_CASES)
+def test_memmap_offset_column_fits_as_in_memory(offset_data, small_blocks, model, params):
+    X, mm, y = offset_data
+    ref = model(tol=1e-12, **params).fit(X, y)
+    got = model(tol=1e-12, **params).fit(mm, y)
+    assert _rel(got.coef_, ref.coef_) < RTOL
+    assert _rel(got.intercept_, ref.intercept_) < RTOL
+    assert _rel(got.posterior_cov_[:2, :2], ref.posterior_cov_[:2, :2]) < RTOL
+    # Not the unshifted column's slope by accident: the plain fit agrees too
+    # (the shift is a change of coordinates; scale of the check: 1e-5 as in
+    # test_numerics_faults.py).
+    plain = model(tol=1e-12, **params).fit(X - [1e8, 0.0], y)
+    np.testing.assert_allclose(got.coef_, plain.coef_, rtol=1e-5)
+
+
+def test_memmap_offset_column_with_proper_intercept_prior_is_refused(offset_data):
+    _, mm, y = offset_data
+    with pytest.raises(ValueError, match=r"'x0'.*intercept_prior_scale"):
+        LaplaceLogisticClassifier(intercept_prior_scale=2.0).fit(mm, y)

@@ -5,7 +5,7 @@ import pandas as pd
 
 from .._checks.inputs import check_level
 from .._linear.layout import ParameterLayout
-from .convergence import ess_bulk, ess_tail, split_rhat
+from .convergence import chain_diagnostics
 from .draw_likelihood import draw_matrix
 from .weighted import weighted_moments, weighted_quantiles
 
@@ -47,15 +47,21 @@ class ApproximationCheck:
         sample sizes of each parameter.
     sampler_info : dict or None
         Sampler only: step size, acceptance rate, divergent trajectories,
-        gradient passes, chains.
+        gradient passes, chains, warm-up and kept iterations a chain.
     verdict : str
         One or two plain sentences for a report's summary.
     draws : ndarray of shape (S, p)
     weights : ndarray of shape (S,)
+    input_map : callable or None
+        Applied to the X given to ``predict_proba`` and ``predict_interval``
+        before the checked estimator sees it: a wrapper that checked its
+        inner estimator on transformed features (standardised, encoded)
+        sets it, so that predictions take the wrapper's own input.
     """
 
     def __init__(self, estimator, draws, weights, pareto_k, threshold, chains=None, info=None):
         self._estimator = estimator
+        self.input_map = None
         self.draws = draws
         self.weights = weights
         self.pareto_k = float(pareto_k)
@@ -75,9 +81,10 @@ class ApproximationCheck:
             self.rhat = self.ess_bulk = self.ess_tail = None
         else:
             self.method = "sampler"
-            self.rhat = pd.Series(split_rhat(chains), index=index, name="rhat")
-            self.ess_bulk = pd.Series(ess_bulk(chains), index=index, name="ess_bulk")
-            self.ess_tail = pd.Series(ess_tail(chains), index=index, name="ess_tail")
+            rhat, bulk, tail = chain_diagnostics(chains)
+            self.rhat = pd.Series(rhat, index=index, name="rhat")
+            self.ess_bulk = pd.Series(bulk, index=index, name="ess_bulk")
+            self.ess_tail = pd.Series(tail, index=index, name="ess_tail")
             self.ess = float(np.nanmin(self.ess_bulk)) if self.ess_bulk.notna().any() else np.nan
         self.verdict = self._verdict()
 
@@ -146,6 +153,8 @@ class ApproximationCheck:
     def _latent_blocks(self, X):
         """(start, stop, eta, n) over row blocks of X's n rows; eta (m, S) or (m, S, K)."""
         est = self._estimator
+        if self.input_map is not None:
+            X = self.input_map(X)
         X = est._validate_predict_data(X)
         layout = ParameterLayout.of_estimator(est)
         q, S = layout.q, self.n_draws

@@ -72,6 +72,8 @@ class DrawLikelihood:
         self.y = y
         self.w = np.ascontiguousarray(w, dtype=np.float64)
         self._logistic = layout.q == 1 and getattr(likelihood, "name", "") == "logistic"
+        #: Binary logistic: the compiled paths (and the sampler's shortcut) apply.
+        self.is_binary_logistic = self._logistic
         self._recorded = getattr(likelihood, "recorded_log_prob", None) or (lambda log_p: log_p)
         if layout.q == 1:
             self._sign = 2.0 * np.asarray(y, dtype=np.float64) - 1.0

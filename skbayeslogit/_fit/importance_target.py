@@ -10,6 +10,8 @@ Jacobian of the map is constant and drops out.
 
 import numpy as np
 
+from .whitened_logistic import WhitenedLogistic, fits_in_memory
+
 
 class WhitenedPosterior:
     """log p(theta(u) | y) up to a constant, theta(u) = mean + u @ R.
@@ -31,6 +33,13 @@ class WhitenedPosterior:
         self.mean = np.asarray(mean, dtype=np.float64)
         self.R = np.asarray(R, dtype=np.float64)
         self.dim = self.R.shape[0]
+        self._whitened = None
+        # The log prior is quadratic in u: -0.5 u Q u^T - u . c - const, with
+        # Q = R P R^T and c = R P m (P the diagonal prior precision).
+        scaled = self.R * self.prior_precision
+        self._prior_Q = np.dot(scaled, self.R.T)
+        self._prior_c = np.dot(scaled, self.mean)
+        self._prior_const = 0.5 * np.dot(self.mean * self.mean, self.prior_precision)
 
     def to_theta(self, U):
         """Parameters (S, p_full) of whitened points U (S, p_free)."""
@@ -46,6 +55,15 @@ class WhitenedPosterior:
 
     def value_grad(self, U):
         """Log posterior and its gradient in u at each row of U (few rows)."""
+        if self._whitened is None and fits_in_memory(self.draw_likelihood, self.dim):
+            self._whitened = WhitenedLogistic(self.draw_likelihood, self.mean, self.R)
+        if self._whitened is not None:
+            value, grad_u = self._whitened.value_grad(U)
+            prior_grad = np.dot(U, self._prior_Q)
+            prior_grad += self._prior_c
+            value -= 0.5 * np.einsum("ij,ij->i", U, prior_grad + self._prior_c)
+            value -= self._prior_const
+            return value, grad_u - prior_grad
         thetas = self.to_theta(U)
         value, grad = self.draw_likelihood.value_grad(thetas)
         value = value + self._log_prior(thetas)

@@ -11,6 +11,8 @@ scale).
 """
 
 from .fitting import fitted_on_frame
+from .orientation import oriented_coefficients
+from .posterior_view import check_on_rows
 
 # Warnings point at the user's call: this module -> accessor method -> user.
 _CALLER = 3
@@ -38,22 +40,69 @@ def approximation_check(df, target, model, dropna, options):
     values = {"n_draws": DEFAULT_CHECK_DRAWS, "random_state": None, "refine": False, **options}
     CHECK_ARGUMENTS.check_values(values)
     model, X, y, _ = fitted_on_frame(df, model, target, dropna, stacklevel=_CALLER + 1)
-    checked, X = laplace_estimator(model, X)
-    return checked.check_approximation(X, y, **values)
+    # A FrameModel fitted with a weight column: the check's posterior is
+    # that of the weighted fit.
+    weights = model.row_weights(X) if hasattr(model, "row_weights") else None
+    return check_on_rows(model, X, y, weights, values)
 
 
-def laplace_estimator(model, X):
-    """The estimator with the Laplace posterior and the features it was fitted on."""
-    if hasattr(model, "pipeline_"):
-        # A FrameModel: its final estimator saw the encoded columns.
-        model, X = model.pipeline_[-1], model.transform(X)
-    if hasattr(model, "check_approximation"):
-        return model, X
-    inner = getattr(model, "estimator_", None)
-    if hasattr(inner, "check_approximation") and hasattr(model, "center_"):
-        return inner, (X - model.center_) / model.scale_
-    name = type(getattr(model, "estimator_", model)).__name__
-    raise TypeError(
-        "check_approximation needs a model with a Laplace posterior ('laplace' or "
-        f"'probit'); got {name}."
+def approximation_verdict(check, model=None, level=0.9):
+    """A plain-language verdict of an approximation check, and the corrected table if needed.
+
+    Parameters
+    ----------
+    check : ApproximationCheck
+        What ``check_approximation`` returned.
+    model : fitted estimator or FrameModel, optional
+        The model that was checked: a binary FrameModel's table is then
+        turned to the log-odds of its ``positive_``, as its own
+        ``coef_table`` is.
+    level : float in (0, 1), default=0.9
+        Credible level of the corrected table's bounds.
+
+    Returns
+    -------
+    sentence : str
+        Whether the fast (Laplace) posterior can be trusted, with the Pareto
+        k against its threshold, the effective sample size and the largest
+        change of a posterior mean (in Laplace posterior sd).
+    table : pandas.DataFrame or None
+        None when the check is reliable; otherwise the corrected
+        coefficient table (importance-weighted, or the sampler's after
+        ``refine``; a standardised model's on the standardised scale), with
+        ``attrs["method"]`` naming how it was corrected.
+    """
+    k = f"Pareto k = {check.pareto_k:.2f}"
+    shift = float(abs(check.mean_shift).max()) if len(check.mean_shift) else 0.0
+    moved = f"the largest change of a posterior mean is {shift:.2f} sd"
+    if check.reliable:
+        return (
+            f"The fast (Laplace) posterior agrees with the exact one: {k}, below the "
+            f"threshold {check.threshold:.2f}; {moved}.",
+            None,
+        )
+    head = (
+        f"The fast (Laplace) posterior does not match the exact one: {k}, at or above the "
+        f"threshold {check.threshold:.2f}, and {moved}"
     )
+    if check.method == "sampler":
+        worst = float(check.rhat.max())
+        sentence = (
+            f"{head}. The intervals below come from a sampler ({check.sampler_info['chains']} "
+            f"chains, largest R-hat {worst:.3f}, smallest tail effective sample size "
+            f"{float(check.ess_tail.min()):,.0f})."
+        )
+        if not worst < 1.01:
+            sentence += " The sampler has not converged (R-hat >= 1.01): treat them with care."
+    else:
+        sentence = (
+            f"{head}. The intervals below are corrected by importance sampling, but with an "
+            f"effective sample size of {check.ess:,.0f} of {check.n_draws:,} draws they are "
+            "rough; the check with refine=True gives sampler-based intervals."
+        )
+    table = check.coef_table(level)
+    classes, index = getattr(model, "classes_", None), getattr(model, "positive_index_", None)
+    if index is not None and table.index.nlevels == 1:
+        table = oriented_coefficients(table, classes, index)
+    table.attrs["method"] = check.method
+    return sentence, table

@@ -15,6 +15,7 @@ import pandas as pd
 from sklearn.utils.metaestimators import available_if
 from sklearn.utils.validation import check_is_fitted
 
+from .._approximation import DEFAULT_CHECK_DRAWS
 from .._checks.inputs import check_level
 from .orientation import oriented_bounds, oriented_coefficients
 from .rows import missing_policy, rows_used
@@ -153,13 +154,86 @@ class FramePosterior:
         final = self.pipeline_[-1]
         if X is None:
             return final.column_evidence(self.groups_)
+        used, y, w = self._fitted_rows(X, stacklevel=4)
+        return final.column_evidence(self.groups_, self.transform(used), y, w)
+
+    @available_if(final_has("check_approximation"))
+    def check_approximation(self, X, n_draws=DEFAULT_CHECK_DRAWS, random_state=None, refine=False):
+        """How far the Laplace posterior is from the exact one on the rows of a table.
+
+        Parameters
+        ----------
+        X : pandas.DataFrame
+            The table the model was fitted on: the feature columns, the
+            target and the weight column if any (rows left out as in
+            fitting, by ``missing``).
+        n_draws, random_state, refine :
+            As in the estimator's ``check_approximation``.
+
+        Returns
+        -------
+        ApproximationCheck
+            The final estimator's check on the encoded columns; a
+            standardised model's ``coef_table`` is on the standardised
+            scale, binary tables are of the log-odds of ``classes_[1]``
+            (:func:`~skbayeslogit._frame.approximation.approximation_verdict`
+            turns them to ``positive_``). Its ``predict_proba`` and
+            ``predict_interval`` take tables, as this model's do.
+        """
+        check_is_fitted(self, "pipeline_")
+        used, y, w = self._fitted_rows(X, stacklevel=3)
+        options = {"n_draws": n_draws, "random_state": random_state, "refine": refine}
+        return check_on_rows(self, used, y, w, options)
+
+    def _fitted_rows(self, X, stacklevel):
+        """The rows of table X that fitting would use, their labels and weights."""
         df = as_frame(X)
         policy = missing_policy(self.missing)
-        keep = rows_used(df, list(self.feature_names_in_), self.target, policy, stacklevel=3)
+        feats = list(self.feature_names_in_)
+        keep = rows_used(df, feats, self.target, policy, stacklevel=stacklevel)
         used = df if keep.all() else df.loc[keep]
-        w = None if self.weight_column_ is None else used[self.weight_column_].to_numpy(float)
-        Z = self.transform(used)
-        return final.column_evidence(self.groups_, Z, labels_of(used[self.target]), w)
+        return used, labels_of(used[self.target]), self.row_weights(used)
+
+    def row_weights(self, rows):
+        """The frequency weights of ``rows`` (a table) from the weight column, or None."""
+        column = getattr(self, "weight_column_", None)
+        return None if column is None else rows[column].to_numpy(float)
+
+
+def laplace_estimator(model, X):
+    """The estimator with the Laplace posterior, and ``X`` as that estimator takes it.
+
+    A FrameModel hands on its final estimator and the encoded columns of
+    table ``X``; a standardised final estimator standardises them itself
+    (its ``check_approximation`` checks its wrapped estimator). A TypeError
+    when the model has no Laplace posterior.
+    """
+    if hasattr(model, "pipeline_"):
+        # A FrameModel: its final estimator saw the encoded columns.
+        model, X = model.pipeline_[-1], model.transform(X)
+    if hasattr(model, "check_approximation"):
+        return model, X
+    name = type(getattr(model, "estimator_", model)).__name__
+    raise TypeError(
+        "check_approximation needs a model with a Laplace posterior ('laplace' or "
+        f"'probit'); got {name}."
+    )
+
+
+def check_on_rows(model, X, y, sample_weight, options):
+    """``check_approximation`` of a fitted model (FrameModel or estimator) on its input rows.
+
+    ``options`` holds ``n_draws``, ``random_state`` and ``refine``. The
+    check's predictions take ``model``'s own input (a FrameModel's tables).
+    """
+    checked, Z = laplace_estimator(model, X)
+    check = checked.check_approximation(Z, y, sample_weight=sample_weight, **options)
+    if checked is not model:
+        inner = check.input_map
+        check.input_map = lambda rows: (
+            model.transform(rows) if inner is None else inner(model.transform(rows))
+        )
+    return check
 
 
 def coefficient_table(model, level):

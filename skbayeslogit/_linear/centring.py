@@ -31,7 +31,10 @@ CENTRE_RATIO = 1e2
 
 def offset_columns(X):
     """Column means and the mask of columns whose |mean| > ``CENTRE_RATIO`` sd (sd > 0)."""
-    mean, sd = column_moments(X)
+    return _offset_mask(*column_moments(X))
+
+
+def _offset_mask(mean, sd):
     return mean, (sd > 0) & (np.abs(mean) > CENTRE_RATIO * sd)
 
 
@@ -41,9 +44,13 @@ def centre_columns(design, intercept_scale, names):
     Parameters
     ----------
     design : DesignBase
-        Only an in-memory ``LinearDesign`` with an intercept is centred;
-        without an intercept, a shift of a column is not absorbed by
-        anything, and the problem is left as posed.
+        A design with an intercept: in memory it is copied centred; a
+        memory-mapped or dask one (``SourceDesign``) subtracts the means
+        from every block it reads, the means coming from the validation
+        pass's column moments (weighted; any centre is exact, see above),
+        so the data are not read an extra time. Without an intercept, a
+        shift of a column is not absorbed by anything, and the problem is
+        left as posed.
     intercept_scale : float or None
         The intercept's prior sd (None: flat).
     names : callable
@@ -60,10 +67,10 @@ def centre_columns(design, intercept_scale, names):
     ValueError
         When a column needs centring and the intercept's prior is proper.
     """
-    X = dense_matrix(design)
-    if X is None or not design.fit_intercept or not design.d:
+    if not design.fit_intercept or not design.d:
         return design, None
-    mean, shifted = offset_columns(X)
+    X = dense_matrix(design)
+    mean, shifted = offset_columns(X) if X is not None else _offset_mask(*design.column_moments())
     if not np.any(shifted):
         return design, None
     if intercept_scale is not None:
@@ -75,7 +82,10 @@ def centre_columns(design, intercept_scale, names):
             "intercept_prior_scale=None."
         )
     m = np.where(shifted, mean, 0.0)
-    centred = LinearDesign(np.ascontiguousarray(X - m), design.q, True)
+    if X is None:
+        centred = design.centred(m)
+    else:
+        centred = LinearDesign(np.ascontiguousarray(X - m), design.q, True)
     layout = design.layout
     A = np.eye(layout.p_full)
     cols = np.arange(layout.d)

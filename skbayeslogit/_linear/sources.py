@@ -289,6 +289,11 @@ def make_source(X, y, sample_weight):
     return MemmapSource(X, y, sample_weight)
 
 
+def shifted_piece(X, y, w, piece, shift, *args):
+    """``piece`` on a block whose columns are moved by ``-shift`` (a centred design's pass)."""
+    return piece(as_block(X) - shift, y, w, *args)
+
+
 class SourceDesign(DesignBase):
     """The design protocol over rows that live in a source, not in one array.
 
@@ -305,17 +310,35 @@ class SourceDesign(DesignBase):
     stats : dict
         From ``blocks.check_source``: the weight total, column moments and
         ranges are kept from it.
+    shift : ndarray of shape (d,) or None
+        Subtracted from every block's columns before its pass (see
+        :meth:`centred`); None: the columns as they are.
     """
 
-    def __init__(self, source, n_outputs, fit_intercept, stats):
+    def __init__(self, source, n_outputs, fit_intercept, stats, shift=None):
         super().__init__(source.n, source.d, n_outputs, fit_intercept)
         self.source = source
-        self._column_sums = (stats["w_sum"], stats["mean"], stats["m2"])
-        self._column_max_abs = stats["colmax"]
+        self.stats = stats
+        self.shift = shift
+        mean = stats["mean"] if shift is None else stats["mean"] - shift
+        self._column_sums = (stats["w_sum"], mean, stats["m2"])
+        self._column_max_abs = stats["colmax"] if shift is None else stats["colmax"] + abs(shift)
+
+    def centred(self, shift):
+        """The same rows with ``shift`` subtracted from the columns, block by block.
+
+        Nothing is read: the column moments move by the shift (the spread
+        stays), and every pass subtracts it from a block after reading it.
+        ``column_max_abs`` becomes an upper bound, max|x| + |shift|.
+        """
+        return SourceDesign(self.source, self.q, self.fit_intercept, self.stats, shift)
 
     def _reduce(self, piece, theta, likelihood):
-        """``source.reduce`` of a block piece at ``theta``."""
-        return self.source.reduce(piece, likelihood, np.asarray(theta), self.q, self.fit_intercept)
+        """``source.reduce`` of a block piece at ``theta`` (on shifted blocks if centred)."""
+        args = (likelihood, np.asarray(theta), self.q, self.fit_intercept)
+        if self.shift is None:
+            return self.source.reduce(piece, *args)
+        return self.source.reduce(shifted_piece, piece, self.shift, *args)
 
     def loss_grad_hess(self, likelihood, y, w, theta, eta=None):
         """Loss sum, gradient and Hessian at ``theta``; eta is not kept (None)."""
@@ -341,7 +364,8 @@ class SourceDesign(DesignBase):
 
     def take(self, idx, y=None, w=None):
         """In-memory X, y, w of rows ``idx`` (for the subsample warm start)."""
-        return self.source.take(idx)
+        X, y, w = self.source.take(idx)
+        return (X if self.shift is None else X - self.shift), y, w
 
     def weight_total(self, w=None):
         """Sum of the row weights, from the validation pass."""
