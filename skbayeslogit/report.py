@@ -30,6 +30,7 @@ from ._frame.report_columns import choose_columns, evidence_by_model, used_rows
 from ._frame.report_files import write_files
 from ._frame.report_steps import (
     checked_approximation,
+    checked_verdict,
     confusion_tables,
     doubtful_rows,
     fit_models,
@@ -102,6 +103,13 @@ class Report:
         ``check_approximation`` of the primary model, seeded with the run's
         seed; None for a model without a Laplace posterior, or when the
         check failed (a note says why).
+    approximation_verdict : str or None
+        The check's verdict in plain words (``approximation_verdict`` of
+        ``_frame/approximation.py``).
+    corrected_coefficients : DataFrame or None
+        When the check finds the fast posterior unreliable: the primary
+        model's coefficient table corrected by the importance-weighted draws
+        (features standardised, as the report's own tables).
 
     Notes
     -----
@@ -137,6 +145,8 @@ class Report:
     class_rates: pd.DataFrame | None = None
     top: int = 20
     approximation: object = None
+    approximation_verdict: str | None = None
+    corrected_coefficients: pd.DataFrame | None = None
     n_cases: int = 5  # prediction rows shown in the text
 
 
@@ -237,6 +247,7 @@ def build_report(
     rows = _row_tables(df, target, fits, primary, choice, lines, level, top, held)
     rows["ground_truth"] = ground_truth(scenario, rows["doubtful"], top)
     rows["approximation"] = _checked(df, target, fits, primary, choice, random_state, notes)
+    rows.update(checked_verdict(rows["approximation"], primary_model, level))
     if cost_fp is not None:
         if n_classes == 2:
             rows["threshold"] = df.bayeslogit.cost_threshold(

@@ -90,6 +90,8 @@ def _tables(report, calibration):
     if report.columns is not None:
         tables["columns"] = report.columns
     tables.update({f"coefficients_{n}": t for n, t in report.coefficients.items()})
+    if report.corrected_coefficients is not None:
+        tables["coefficients_corrected"] = report.corrected_coefficients
     tables.update({f"calibration_{n}": t for n, t in calibration.items()})
     tables.update({f"column_evidence_{n}": t for n, t in report.column_evidence.items()})
     tables.update(confusion=report.confusion, doubtful_labels=report.doubtful)

@@ -57,6 +57,7 @@ def render_page(report, calibration, images, missing, caution):
         _comparison(report),
         *_evidence(report),
         *_coefficients(report, figures),
+        _corrected(report),
         _calibration(report, calibration, figures),
         _confusion(report),
         _costs(report),
@@ -160,6 +161,21 @@ def _comparison(report):
             table(shown, "comparison"),
             table(report.evidence, "evidence", caption="Prior scale and evidence"),
         ],
+    )
+
+
+def _corrected(report):
+    frame = report.corrected_coefficients
+    if frame is None:
+        return None
+    level = level_label(report.level)
+    renamed = frame.rename(columns={"lower": f"lower {level}", "upper": f"upper {level}"})
+    key = ["estimate", "sd", f"lower {level}", f"upper {level}", "sign_prob"]
+    return _section(
+        "coefficients_corrected",
+        f"{model_title(report.primary)}: coefficients corrected by the approximation check",
+        lines=[report.approximation_verdict],
+        tables=[table(renamed, "coefficients_corrected", shown=key)],
     )
 
 

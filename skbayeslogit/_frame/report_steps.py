@@ -12,7 +12,7 @@ import numpy as np
 import pandas as pd
 
 from .._fit.identification import binary_separation
-from .approximation import approximation_check
+from .approximation import approximation_check, approximation_verdict
 from .arguments import check_positive_int
 from .comparison import compare_models
 from .doubtful import doubtful_table, precision_at
@@ -141,6 +141,14 @@ def checked_approximation(df, target, model, random_state, notes):
     except (TypeError, ValueError, ArithmeticError, np.linalg.LinAlgError) as exc:
         notes.append(f"the approximation check could not run: {exc}")
         return None
+
+
+def checked_verdict(check, model, level):
+    """The Report's ``approximation_verdict`` and ``corrected_coefficients``."""
+    if check is None:
+        return {"approximation_verdict": None, "corrected_coefficients": None}
+    sentence, table = approximation_verdict(check, model, level)
+    return {"approximation_verdict": sentence, "corrected_coefficients": table}
 
 
 def row_weights(df, weight):

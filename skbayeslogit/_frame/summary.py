@@ -290,23 +290,17 @@ def floor_sentence(models):
     )
 
 
-def approximation_sentence(check):
-    """One sentence on the Laplace approximation check (Pareto-smoothed importance sampling)."""
-    if check is None:
+def approximation_sentence(verdict, corrected):
+    """The summary's line on the Laplace approximation check (Pareto-smoothed
+    importance sampling), from its verdict; None when no check ran."""
+    if verdict is None:
         return None
-    k = significant(check.pareto_k, 2)
-    limit = significant(check.threshold, 2)
-    ess = f"{significant(check.ess)} of {check.n_draws} draws"
-    if check.reliable:
-        return (
-            f"Approximation check: Pareto k {k} is below {limit} (effective sample size "
-            f"{ess}), so the fast Gaussian posterior behind the intervals agrees with the "
-            "exact one."
-        )
+    if corrected is None:
+        return f"Approximation check: {verdict}"
     return (
-        f"Warning: approximation check Pareto k {k} is not below {limit} (effective sample "
-        f"size {ess}): the fast Gaussian posterior differs from the exact one, and its "
-        "intervals are not to be trusted as printed."
+        f"Warning: approximation check: {verdict} The coefficient table corrected by the "
+        "check's weighted draws is shown after the coefficients (and in "
+        "coefficients_corrected.csv)."
     )
 
 
@@ -372,5 +366,7 @@ def findings(report, fits, held_out, seed):
     sentences.append(separation_sentence(fits.separated_classes, len(report.classes)))
     sentences.append(edge_sentence(fits.at_edge))
     sentences.append(floor_sentence(fits.at_floor))
-    sentences.append(approximation_sentence(report.approximation))
+    sentences.append(
+        approximation_sentence(report.approximation_verdict, report.corrected_coefficients)
+    )
     return [s for s in sentences if s]
