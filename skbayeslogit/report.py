@@ -246,8 +246,7 @@ def build_report(
     held = held_out.get(primary)
     rows = _row_tables(df, target, fits, primary, choice, lines, level, top, held)
     rows["ground_truth"] = ground_truth(scenario, rows["doubtful"], top)
-    rows["approximation"] = _checked(df, target, fits, primary, choice, random_state, notes)
-    rows.update(checked_verdict(rows["approximation"], primary_model, level))
+    rows.update(_checked(df, target, fits, primary, choice, random_state, notes, level))
     if cost_fp is not None:
         if n_classes == 2:
             rows["threshold"] = df.bayeslogit.cost_threshold(
@@ -295,11 +294,13 @@ def _without_attrs(df):
     return df.attrs, view
 
 
-def _checked(df, target, fits, primary, choice, seed, notes):
-    """The primary model's approximation check; records separated classes in ``fits``."""
+def _checked(df, target, fits, primary, choice, seed, notes, level):
+    """The primary model's approximation check and its verdict (the Report's
+    ``approximation*`` fields); records separated classes in ``fits``."""
     model = fits.models[primary]
     fits.separated_classes = separated_classes(df, target, model, choice.weight, notes)
-    return checked_approximation(df, target, model, seed, notes)
+    check = checked_approximation(df, target, model, seed, notes)
+    return {"approximation": check, **checked_verdict(check, model, level)}
 
 
 def _row_tables(df, target, fits, primary, choice, lines, level, top, held_out):
